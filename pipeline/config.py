@@ -1,0 +1,295 @@
+"""The one declared configuration schema.
+
+A study's ``study.toml`` is read into :class:`Config`. Every field has a default
+here, the same default (with the source it comes from) in ``configs/defaults.toml``
+and a description; tests hold the three together. Unknown keys are refused with
+a "did you mean" suggestion, so a typo never silently falls back to a default.
+
+Each stage receives only its own section (``cfg.switching``, ``cfg.signals`` ...),
+which is what lets per-session stages be cached on a hash of what they use.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import tomllib
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from pipeline.errors import ConfigError
+
+
+class StrictModel(BaseModel):
+    """Base of every settings section: unknown keys are errors, values are validated."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, validate_default=True)
+
+    def fingerprint(self) -> str:
+        """A short stable hash of the settings, for caching per-session results."""
+        text = json.dumps(self.model_dump(mode="json"), sort_keys=True)
+        return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+# --------------------------------------------------------------------------- study
+class StudySettings(StrictModel):
+    data_dir: str = Field(".", description="Study folder, relative to the TOML file that names it.")
+    name: str = Field("Untitled study", description="Study title shown in the report and deck.")
+    timezone: str = Field(
+        "UTC",
+        description="IANA time zone in which naive session start/end times are read.",
+    )
+
+    @model_validator(mode="after")
+    def _known_zone(self) -> "StudySettings":
+        from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+        try:
+            ZoneInfo(self.timezone)
+        except (ZoneInfoNotFoundError, ValueError):
+            raise ValueError(f"unknown IANA time zone {self.timezone!r} (e.g. 'Europe/Berlin')")
+        return self
+
+
+class PlatformSettings(StrictModel):
+    groups: dict[str, str] = Field(
+        default_factory=dict,
+        description="Platform vocabulary: each allowed code and the group it belongs to "
+        "(e.g. tv = 'screen', magazine = 'print').",
+    )
+    labels: dict[str, str] = Field(
+        default_factory=dict,
+        description="Optional readable label per platform code for charts and the report.",
+    )
+
+
+class CodingSettings(StrictModel):
+    primary_coder: str | None = Field(
+        None,
+        description="Coder whose codes `run` uses where a session has several; "
+        "default: the first coder in sorted order.",
+    )
+
+
+class SwitchSettings(StrictModel):
+    min_bout_s: int = Field(1, ge=1, description="Attention bouts shorter than this are dropped.")
+    max_gap_s: int = Field(
+        3, ge=0, description="Empty seconds allowed between two bouts of a switch."
+    )
+    min_multi_minutes: float = Field(
+        5.0,
+        ge=0,
+        description="Below this much multi-platform time a session's switch rate is left empty.",
+    )
+
+
+class DwellSettings(StrictModel):
+    censor_at_invalid_signal: bool = Field(
+        True,
+        description="Treat a bout that borders invalid signal as right-censored, like one "
+        "that borders an uncoded gap.",
+    )
+
+
+# ------------------------------------------------------------------------- signals
+class EdaSettings(StrictModel):
+    max_us: float = Field(
+        100.0, gt=0, description="Skin conductance above this (µS) cannot be real: invalid."
+    )
+    min_us: float = Field(
+        0.0, ge=0, description="Skin conductance at or below this (µS) is invalid."
+    )
+    min_valid_share: float = Field(
+        0.5,
+        ge=0,
+        le=1,
+        description="A video second is valid when at least this share of its samples is valid.",
+    )
+
+
+class SignalSettings(StrictModel):
+    edf_labels: dict[str, str] = Field(
+        default_factory=dict,
+        description="EDF signal label -> contract column name (e.g. 'GSR' = 'eda_us').",
+    )
+    eda: EdaSettings = Field(default_factory=EdaSettings, description="Skin conductance rules.")
+
+
+class ArousalSettings(StrictModel):
+    source: Literal["eda", "phasic"] = Field(
+        "eda",
+        description="Signal the arousal z-score is built from: cleaned skin conductance "
+        "or its phasic component.",
+    )
+    min_state_minutes: float = Field(
+        10.0,
+        ge=0,
+        description="Peak, trough and range need at least this many valid minutes of a state.",
+    )
+
+
+class QcSettings(StrictModel):
+    min_usable_share: float = Field(
+        0.5,
+        ge=0,
+        le=1,
+        description="Sessions with a smaller share of coded seconds with valid signal are "
+        "flagged.",
+    )
+    exclude_flagged_from_models: bool = Field(
+        True, description="Leave sessions flagged unusable out of the models."
+    )
+
+
+class CohortSettings(StrictModel):
+    reference: str | None = Field(
+        None, description="Reference cohort of the models; default: first in sorted order."
+    )
+
+
+class ModelSettings(StrictModel):
+    covariates: list[str] = Field(
+        default_factory=list, description="Roster columns added as fixed effects."
+    )
+    fdr_q: float = Field(
+        0.05, gt=0, lt=1, description="False discovery rate for Benjamini-Hochberg."
+    )
+
+
+class AgreementSettings(StrictModel):
+    switch_tolerance_s: int = Field(
+        2,
+        ge=0,
+        description="Two coders' switches match when this close in time (and same platforms).",
+    )
+
+
+class SurveySettings(StrictModel):
+    items: list[str] = Field(
+        default_factory=list, description="Items analysed; empty means every item seen."
+    )
+    scale_min: float | None = Field(None, description="Lowest allowed response value.")
+    scale_max: float | None = Field(None, description="Highest allowed response value.")
+
+
+class Config(StrictModel):
+    """The whole resolved configuration of a run."""
+
+    study: StudySettings = Field(default_factory=StudySettings, description="The study itself.")
+    platforms: PlatformSettings | None = Field(
+        None,
+        description="Platform vocabulary; absent means every code seen, reported in the summary.",
+    )
+    coding: CodingSettings = Field(default_factory=CodingSettings, description="Coders.")
+    switching: SwitchSettings = Field(
+        default_factory=SwitchSettings, description="Attention bouts and switches."
+    )
+    dwell: DwellSettings = Field(default_factory=DwellSettings, description="Dwell times.")
+    signals: SignalSettings = Field(default_factory=SignalSettings, description="Sensor signals.")
+    arousal: ArousalSettings = Field(default_factory=ArousalSettings, description="Arousal.")
+    qc: QcSettings = Field(default_factory=QcSettings, description="Quality control.")
+    cohorts: CohortSettings = Field(default_factory=CohortSettings, description="Cohorts.")
+    models: ModelSettings = Field(default_factory=ModelSettings, description="Group models.")
+    agreement: AgreementSettings = Field(
+        default_factory=AgreementSettings, description="Coder agreement."
+    )
+    survey: SurveySettings = Field(default_factory=SurveySettings, description="Survey items.")
+
+
+# --------------------------------------------------------------------------- loading
+def _field_names(model: type[BaseModel], loc: tuple[Any, ...]) -> list[str]:
+    """Names allowed at ``loc`` (the path of the offending key's parent)."""
+    current: Any = model
+    for part in loc:
+        fields = getattr(current, "model_fields", None)
+        if not fields or part not in fields:
+            return []
+        ann = fields[part].annotation
+        # unwrap Optional[...] / X | None
+        args = getattr(ann, "__args__", None)
+        if args:
+            ann = next((a for a in args if isinstance(a, type) and issubclass(a, BaseModel)), ann)
+        current = ann
+    fields = getattr(current, "model_fields", None)
+    return list(fields) if fields else []
+
+
+def _explain(err: ValidationError, source: str) -> ConfigError:
+    lines = []
+    hints = []
+    for e in err.errors():
+        loc = tuple(e["loc"])
+        key = ".".join(str(p) for p in loc)
+        if e["type"] == "extra_forbidden":
+            allowed = _field_names(Config, loc[:-1])
+            close = difflib.get_close_matches(str(loc[-1]), allowed, n=1)
+            msg = f"unknown setting [{'.'.join(map(str, loc[:-1])) or 'top level'}] {loc[-1]!r}"
+            if close:
+                msg += f"; did you mean {close[0]!r}?"
+            lines.append(msg)
+            if allowed:
+                hints.append(f"allowed here: {', '.join(allowed)}")
+        else:
+            value = e.get("input")
+            lines.append(f"setting {key} = {value!r}: {e['msg']}")
+    return ConfigError(f"{source}: " + "; ".join(lines), hint="; ".join(hints) or None)
+
+
+def parse_config(data: dict[str, Any], source: str = "configuration") -> Config:
+    """Validate a dict (as read from TOML) into a :class:`Config`."""
+    try:
+        return Config.model_validate(data)
+    except ValidationError as err:
+        raise _explain(err, source) from None
+
+
+def read_toml(path: Path) -> dict[str, Any]:
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except tomllib.TOMLDecodeError as err:
+        raise ConfigError(f"{path}: not valid TOML ({err})",
+                          hint="check quotes and brackets near the line named") from None
+    except OSError as err:
+        raise ConfigError(f"{path}: cannot be read ({err.strerror})") from None
+
+
+def resolve_study(target: str | Path) -> tuple[Path, Config, Path | None]:
+    """Turn what the user typed into (study folder, resolved config, config file used).
+
+    ``target`` is a study folder (its ``study.toml`` is read if present) or a
+    ``.toml`` file whose ``[study] data_dir`` names the folder relative to the file.
+    """
+    target = Path(target)
+    if target.is_file() and target.suffix == ".toml":
+        data = read_toml(target)
+        cfg = parse_config(data, str(target))
+        folder = (target.parent / cfg.study.data_dir).resolve()
+        config_file: Path | None = target
+    elif target.is_dir():
+        config_file = target / "study.toml"
+        if config_file.is_file():
+            cfg = parse_config(read_toml(config_file), str(config_file))
+        else:
+            cfg, config_file = Config(), None
+        folder = target.resolve()
+    else:
+        raise ConfigError(
+            f"{target}: no such study folder or .toml file",
+            hint="give a study folder (with roster.csv, sessions.csv ...) or a study .toml",
+        )
+    if not folder.is_dir():
+        raise ConfigError(
+            f"{config_file}: [study] data_dir = {cfg.study.data_dir!r} is not a folder "
+            f"({folder})",
+            hint="data_dir is read relative to the .toml file",
+        )
+    return folder, cfg, config_file
+
+
+def defaults_file() -> Path:
+    """The repository's documented defaults (configs/defaults.toml)."""
+    return Path(__file__).resolve().parent.parent / "configs" / "defaults.toml"

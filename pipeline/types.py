@@ -1,0 +1,176 @@
+"""The typed objects passed between stages.
+
+The data flow is one way::
+
+    ingest.load_study(target)            -> Study
+    ingest.read_recording(path, cfg)     -> Recording          (runner does the I/O)
+    signals.process_recording(rec, cfg)  -> SessionSignals     (sensor clock)
+    align.build_timeline(inputs, sig, cfg) -> per-second timeline DataFrame (video clock)
+    metrics.arousal.add_arousal(timelines of one participant) -> same, with `arousal`
+    metrics.session_metrics(timeline, inputs, cfg) -> SessionMetrics
+    models.compare(tables, cfg)          -> comparisons DataFrame
+    report.build(out_dir)                -> charts, report.html, deck.pptx
+
+Per-session stages are pure functions of (these objects, one config section).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+#: Columns of the per-second timeline (one row per video second of a session).
+#: Written to OUT/timeline/ as Parquet. Stages may add columns, never rename these.
+TIMELINE_COLUMNS: dict[str, str] = {
+    "participant_id": "participant ID",
+    "session_id": "session ID",
+    "second": "video-clock second from the session start, 0-based",
+    "coded": "True where the media log codes this second",
+    "in_view": "platform codes in view, sorted, ';'-joined ('' for none; NA where uncoded)",
+    "attended": "the attended platform ('' for none; NA where uncoded)",
+    "n_in_view": "number of platforms in view (NA where uncoded)",
+    "state": "coarse state: none / single / multi (NA where uncoded)",
+    "fine_state": "sorted in-view codes joined by '+' ('none' for none; NA where uncoded)",
+    "sensor_s": "sensor-clock time of this second's start after the sync mapping",
+    "eda_us": "1 Hz mean of cleaned skin conductance (µS)",
+    "eda_tonic_us": "1 Hz mean of the tonic component (µS)",
+    "eda_phasic_us": "1 Hz mean of the phasic component (µS)",
+    "scr_onsets": "number of SCR onsets in this second",
+    "scr_amplitude_sum_us": "sum of the amplitudes of SCRs with onset in this second (µS)",
+    "hr_bpm": "1 Hz mean heart rate (beats/min)",
+    "motion_g": "1 Hz mean accelerometer magnitude deviation from 1 g (g)",
+    "signal_valid": "True where this second's skin conductance is valid",
+    "hr_valid": "True where this second's heart rate is valid",
+    "arousal": "within-participant z-score of the arousal source (NaN where invalid)",
+}
+
+STATES = ("none", "single", "multi")
+
+
+@dataclass(frozen=True)
+class SessionKey:
+    participant_id: str
+    session_id: str
+
+    def label(self) -> str:
+        return f"{self.participant_id}/{self.session_id}"
+
+    def stem(self) -> str:
+        """File-name stem used for per-session files (IDs are validated safe)."""
+        return f"{self.participant_id}__{self.session_id}"
+
+
+@dataclass
+class Study:
+    """A validated study folder. Everything here has passed ingest's checks.
+
+    Tables use the contract's column names.
+
+    * ``roster``: participant_id, cohort, covariate columns...
+    * ``sessions``: participant_id, session_id, start, end (tz-aware UTC Timestamps),
+      duration_s (int)
+    * ``media_log``: participant_id, session_id, second (int), in_view (str, sorted
+      codes ';'-joined, '' for none), attended (str, '' for none), coder (str, '' if
+      the log has no coder column). All coders' rows are kept here.
+    * ``sync``: participant_id, session_id, video_s, sensor_s (float)
+    * ``survey``: participant_id, item, value, or None
+    * ``recordings``: SessionKey -> path of that session's signal file
+    * ``platform_groups``: platform code -> group (from [platforms], or each code seen
+      mapped to "ungrouped" when [platforms] is absent)
+    """
+
+    root: Path
+    roster: pd.DataFrame
+    sessions: pd.DataFrame
+    media_log: pd.DataFrame
+    sync: pd.DataFrame
+    survey: pd.DataFrame | None
+    recordings: dict[SessionKey, Path]
+    platform_groups: dict[str, str]
+    vocabulary_declared: bool
+    input_files: list[Path] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+    def session_keys(self) -> list[SessionKey]:
+        return [SessionKey(p, s) for p, s in
+                self.sessions[["participant_id", "session_id"]].itertuples(index=False)]
+
+    def coders(self, key: SessionKey) -> list[str]:
+        m = self.media_log
+        sel = m[(m.participant_id == key.participant_id) & (m.session_id == key.session_id)]
+        return sorted(sel["coder"].unique().tolist())
+
+
+@dataclass
+class SessionInputs:
+    """Everything one session's stages need, cut out of the study by the runner."""
+
+    key: SessionKey
+    cohort: str
+    duration_s: int
+    codes: pd.DataFrame  # second, in_view, attended: one coder's rows, sorted by second
+    coder: str
+    sync_pairs: np.ndarray  # shape (n, 2): video_s, sensor_s
+    recording_path: Path | None
+    platform_groups: dict[str, str]
+
+
+@dataclass
+class Recording:
+    """One session's sensor recording on its own clock, as read from disk.
+
+    ``channels`` maps contract names (eda_us, hr_bpm, acc_x, acc_y, acc_z, resp, ibi_ms)
+    to float arrays the same length as ``time_s``; NaN where a channel has no sample.
+    """
+
+    time_s: np.ndarray
+    channels: dict[str, np.ndarray]
+    source: Path | None = None
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def sampling_rate_hz(self) -> float:
+        """Median sampling rate of the time axis (NaN with fewer than two samples)."""
+        if len(self.time_s) < 2:
+            return float("nan")
+        return float(1.0 / np.median(np.diff(self.time_s)))
+
+    @property
+    def nbytes(self) -> int:
+        return int(self.time_s.nbytes + sum(a.nbytes for a in self.channels.values()))
+
+
+@dataclass
+class SessionSignals:
+    """A processed recording, still on the sensor clock.
+
+    ``samples`` has one row per (uniformly resampled) sample: time_s, eda_us (cleaned),
+    eda_tonic_us, eda_phasic_us, eda_valid (bool), and where present hr_bpm, hr_valid,
+    motion_g. ``scrs`` has one row per SCR: onset_s, peak_s, amplitude_us, rise_time_s,
+    half_recovery_s (NaN when not reached). ``invalid_share`` maps each artifact rule
+    to the share of samples it marked invalid. ``methods`` names the published methods
+    that ran (keys of the registries), for the report's methods text.
+    """
+
+    samples: pd.DataFrame
+    scrs: pd.DataFrame
+    invalid_share: dict[str, float]
+    methods: dict[str, str]
+    sampling_rate_hz: float
+    notes: list[str] = field(default_factory=list)
+
+
+@dataclass
+class SessionMetrics:
+    """One session's metric rows, ready to be concatenated into the study tables."""
+
+    session: dict  # one row of metrics/sessions.csv
+    states: pd.DataFrame  # rows of metrics/states.csv
+    platforms: pd.DataFrame  # rows of metrics/platforms.csv
+    groups: pd.DataFrame  # rows of metrics/groups.csv (time budget per platform group)
+    bouts: pd.DataFrame  # rows of metrics/bouts.csv (every attention bout, with censoring)
+    switches: pd.DataFrame  # rows of metrics/switches.csv (every switch event)
+    flags: list[str] = field(default_factory=list)

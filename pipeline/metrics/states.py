@@ -21,7 +21,7 @@ def classify_states(in_view: pd.Series) -> pd.DataFrame:
     state[~coded] = None
     fine[~coded] = None
     return pd.DataFrame({
-        "n_in_view": pd.array(np.where(coded, n, 0), dtype="Int64").where(coded, pd.NA),
+        "n_in_view": pd.Series(n, index=in_view.index, dtype="Int64").where(coded, pd.NA),
         "state": pd.array(state, dtype="string"),
         "fine_state": pd.array(fine, dtype="string"),
     }, index=in_view.index)

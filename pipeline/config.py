@@ -148,6 +148,16 @@ class CohortSettings(StrictModel):
     reference: str | None = Field(
         None, description="Reference cohort of the models; default: first in sorted order."
     )
+    include: list[str] = Field(
+        default_factory=list,
+        description="Cohorts compared by the models; empty means every cohort in the data.",
+    )
+    min_participants: int = Field(
+        3,
+        ge=2,
+        description="A model is fitted only where every cohort has at least this many "
+        "participants with data; otherwise the outcome is reported as not fitted.",
+    )
 
 
 class ModelSettings(StrictModel):
@@ -157,6 +167,93 @@ class ModelSettings(StrictModel):
     fdr_q: float = Field(
         0.05, gt=0, lt=1, description="False discovery rate for Benjamini-Hochberg."
     )
+    fdr_method: str = Field(
+        "bh",
+        description="Multiple-comparison correction across the family of cohort terms: "
+        "'bh' (Benjamini-Hochberg) or 'by' (Benjamini-Yekutieli, any dependence).",
+    )
+    confidence_level: float = Field(
+        0.95, gt=0, lt=1, description="Coverage of the confidence intervals reported."
+    )
+    df_method: str = Field(
+        "between_within",
+        description="Degrees of freedom for tests and intervals of fixed effects: "
+        "'between_within' (t, participant-level terms get participant degrees of freedom) "
+        "or 'normal' (z, large-sample).",
+    )
+    session_outcomes: list[str] = Field(
+        default_factory=lambda: ["switches_per_hour", "media_hours", "multi_share",
+                                 "dwell_median_s"],
+        description="Session-level outcomes modelled with cohort as fixed effect and a "
+        "random intercept per participant ('multi_share' = multi_hours / media_hours; "
+        "'dwell_median_s' is modelled once per platform group).",
+    )
+    log_outcomes: list[str] = Field(
+        default_factory=lambda: ["switches_per_hour"],
+        description="Session outcomes modelled on the log scale (effects reported as ratios).",
+    )
+    zero_count_offset: float = Field(
+        0.5,
+        gt=0,
+        description="Where a session has zero switches, the log-scale switch rate uses "
+        "(switches + this) / multi_hours for every session, and says so.",
+    )
+    state_outcomes: list[str] = Field(
+        default_factory=lambda: ["arousal_p95", "arousal_p05", "arousal_range",
+                                 "arousal_mean", "scr_per_min", "hr_mean_bpm"],
+        description="Per-state outcomes modelled as outcome ~ cohort * state with a random "
+        "intercept per participant.",
+    )
+    states: list[str] = Field(
+        default_factory=lambda: ["single", "multi"],
+        description="States entering the cohort * state models; the first is the reference "
+        "state.",
+    )
+    count_method: str = Field(
+        "poisson_gee",
+        description="Count model run as a check of the switch-rate comparison: "
+        "'poisson_gee' or 'negbin_gee' (log link, log(multi_hours) offset, exchangeable "
+        "within participant).",
+    )
+    gee_cov_type: Literal["robust", "bias_reduced"] = Field(
+        "bias_reduced",
+        description="Sandwich covariance of the count model: 'robust' or 'bias_reduced' "
+        "(small-sample correction for few participants).",
+    )
+    zero_variance_share: float = Field(
+        1e-4,
+        ge=0,
+        lt=1,
+        description="A participant variance below this share of the total variance is "
+        "reported as a random-effect variance at zero.",
+    )
+    survey_method: str = Field(
+        "mann_whitney",
+        description="Per-item survey comparison: 'mann_whitney' (with rank-biserial r) or "
+        "'ordinal_logit' (proportional-odds model).",
+    )
+    switch_locked_window_s: int = Field(
+        60, ge=1, description="Switch-locked arousal is traced this many seconds either side "
+        "of each switch."
+    )
+    switch_locked_pseudo: int = Field(
+        200,
+        ge=1,
+        description="Pseudo-switches placed at random in each session's multi-platform time "
+        "as the baseline of the switch-locked trajectory.",
+    )
+    switch_locked_pre_s: int = Field(
+        12,
+        ge=2,
+        description="Seconds before a switch over which the test asks whether arousal rises "
+        "or falls (slope of switch minus pseudo-switch trajectory).",
+    )
+    min_switch_events: int = Field(
+        5,
+        ge=1,
+        description="Participants with fewer switches with valid arousal are left out of the "
+        "switch-locked test, and counted.",
+    )
 
 
 class AgreementSettings(StrictModel):
@@ -165,6 +262,20 @@ class AgreementSettings(StrictModel):
         ge=0,
         description="Two coders' switches match when this close in time (and same platforms).",
     )
+    switch_matching: str = Field(
+        "optimal",
+        description="How coder B's switches are paired one-to-one with coder A's: 'optimal' "
+        "(most pairs, then least total time difference) or 'greedy' (closest pair first).",
+    )
+
+    @model_validator(mode="after")
+    def _known_matching(self) -> "AgreementSettings":
+        from pipeline.agreement.events import MATCHING_METHODS
+
+        if self.switch_matching not in MATCHING_METHODS:
+            raise ValueError(f"unknown switch matching method {self.switch_matching!r}; "
+                             f"choose one of {', '.join(sorted(MATCHING_METHODS))}")
+        return self
 
 
 class SurveySettings(StrictModel):

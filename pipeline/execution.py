@@ -1,0 +1,120 @@
+"""Run per-session tasks serially, on a local process pool, or on a Dask cluster.
+
+Tasks are plain picklable callables' arguments; the task functions are pure, so the
+result does not depend on where they ran. Results are yielded as they complete,
+each as ``(index, Outcome)``; a failure is an Outcome too, never an exception that
+stops the others.
+"""
+
+from __future__ import annotations
+
+import os
+import traceback
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from dataclasses import dataclass
+from typing import Any, Callable, Iterator, Sequence
+
+from pipeline.errors import ConfigError, ScreenweaveError
+
+
+@dataclass
+class Outcome:
+    """What one task gave: a value, or the error that stopped it."""
+
+    value: Any = None
+    error: str | None = None
+    hint: str | None = None
+    traceback: str | None = None
+
+    @property
+    def ok(self) -> bool:
+        return self.error is None
+
+
+def _call(fn: Callable, arg: Any) -> Outcome:
+    try:
+        return Outcome(value=fn(arg))
+    except ScreenweaveError as err:
+        return Outcome(error=err.message, hint=err.hint, traceback=traceback.format_exc())
+    except Exception as err:  # a bug or an unforeseen input: reported per session
+        return Outcome(error=f"internal error: {type(err).__name__}: {err}",
+                       hint="rerun with --debug and report it with the traceback",
+                       traceback=traceback.format_exc())
+
+
+def default_workers() -> int:
+    """All cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
+              cluster: str | None = None, stop_on_error: bool = False
+              ) -> Iterator[tuple[int, Outcome]]:
+    """Yield ``(index, Outcome)`` for each task as it finishes.
+
+    With ``stop_on_error`` no new task is started after the first failure (tasks
+    already running finish and are yielded).
+    """
+    if cluster:
+        yield from _run_dask(fn, args, cluster, stop_on_error)
+        return
+    if workers <= 1 or len(args) <= 1:
+        for i, arg in enumerate(args):
+            out = _call(fn, arg)
+            yield i, out
+            if stop_on_error and not out.ok:
+                return
+        return
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        pending: dict[Future, int] = {}
+        queue = iter(enumerate(args))
+        stopped = False
+
+        def submit_next() -> None:
+            try:
+                i, arg = next(queue)
+            except StopIteration:
+                return
+            pending[pool.submit(_call, fn, arg)] = i
+
+        # keep at most 2 tasks per worker in flight so memory stays bounded
+        for _ in range(2 * workers):
+            submit_next()
+        while pending:
+            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for fut in done:
+                i = pending.pop(fut)
+                out = fut.result()
+                yield i, out
+                if not out.ok and stop_on_error:
+                    stopped = True
+                if not stopped:
+                    submit_next()
+
+
+def _run_dask(fn: Callable, args: Sequence[Any], address: str, stop_on_error: bool
+              ) -> Iterator[tuple[int, Outcome]]:
+    try:
+        from distributed import Client, as_completed
+    except ImportError:
+        raise ConfigError("--cluster needs the Dask extra",
+                          hint="pip install 'screenweave[dask]'") from None
+    try:
+        client = Client(address, timeout="20s")
+    except (OSError, TimeoutError) as err:
+        raise ConfigError(f"cannot reach the Dask scheduler at {address!r} ({err})",
+                          hint="give the scheduler address, e.g. tcp://10.0.0.5:8786") from None
+    try:
+        futures = {client.submit(_call, fn, arg, pure=False): i for i, arg in enumerate(args)}
+        for fut in as_completed(futures):
+            out = fut.result()
+            yield futures[fut], out
+            if stop_on_error and not out.ok:
+                for other in futures:
+                    other.cancel()
+                return
+    finally:
+        client.close()

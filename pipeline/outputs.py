@@ -1,0 +1,84 @@
+"""Writing a run's files safely: atomically, inside the output folder, hashed.
+
+Every file is written to a temporary name in its final folder and then renamed
+over the target (``os.replace`` is atomic on one file system), so an interrupted
+run never leaves a half-written table that looks whole. Every path is checked to
+stay inside the output folder.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any, Callable
+
+import pandas as pd
+
+from pipeline.errors import InputError
+
+
+def sha256_file(path: Path, chunk: int = 1 << 20) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while block := fh.read(chunk):
+            h.update(block)
+    return h.hexdigest()
+
+
+class OutputFolder:
+    """A run's output folder; records what was written and refuses paths outside it."""
+
+    def __init__(self, root: Path):
+        self.root = Path(root).resolve()
+        self.root.mkdir(parents=True, exist_ok=True)
+        self.written: dict[str, str] = {}  # relative path -> stage that wrote it
+
+    def path(self, relative: str | Path) -> Path:
+        target = (self.root / relative).resolve()
+        if target != self.root and self.root not in target.parents:
+            raise InputError(str(relative), "would be written outside the output folder",
+                             hint="IDs and names must not contain path separators or '..'")
+        return target
+
+    def _atomic(self, relative: str | Path, stage: str, write: Callable[[Path], None]) -> Path:
+        target = self.path(relative)
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+        os.close(fd)
+        try:
+            write(Path(tmp))
+            os.replace(tmp, target)
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
+        self.written[target.relative_to(self.root).as_posix()] = stage
+        return target
+
+    def csv(self, relative: str, df: pd.DataFrame, stage: str) -> Path:
+        return self._atomic(relative, stage, lambda p: df.to_csv(p, index=False))
+
+    def parquet(self, relative: str, df: pd.DataFrame, stage: str) -> Path:
+        return self._atomic(relative, stage, lambda p: df.to_parquet(p, index=False))
+
+    def json(self, relative: str, data: Any, stage: str) -> Path:
+        def write(p: Path) -> None:
+            p.write_text(json.dumps(data, indent=2, sort_keys=False, default=str) + "\n",
+                         encoding="utf-8")
+        return self._atomic(relative, stage, write)
+
+    def text(self, relative: str, text: str, stage: str) -> Path:
+        return self._atomic(relative, stage, lambda p: p.write_text(text, encoding="utf-8"))
+
+    def bytes(self, relative: str, data: bytes, stage: str) -> Path:
+        return self._atomic(relative, stage, lambda p: p.write_bytes(data))
+
+    def record(self, path: Path, stage: str) -> None:
+        """Note a file another writer put in the folder (e.g. the report's charts)."""
+        self.written[self.path(path).relative_to(self.root).as_posix()] = stage
+
+    def hashes(self) -> dict[str, dict[str, str]]:
+        return {rel: {"stage": stage, "sha256": sha256_file(self.root / rel)}
+                for rel, stage in sorted(self.written.items()) if (self.root / rel).is_file()}

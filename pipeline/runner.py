@@ -1,0 +1,557 @@
+"""The runner: reads the study, runs the stages, writes the run's files.
+
+Stages themselves compute and never touch files; this module is the only one that
+does I/O for `screenweave run`. The order is:
+
+1. ingest: validate the whole study (refuse early, with every problem listed);
+2. per session (parallel): read recording -> signals -> align, cached on a hash of
+   the session's inputs and the ``[signals]`` settings;
+3. per participant: the mean and SD for the within-participant arousal z-score;
+4. per session (parallel): arousal, media metrics, switch-locked arousal;
+5. group: QC, models, survey, then the tables, manifest, charts, report and deck.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import pickle
+import platform
+import sys
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from pipeline import __version__
+from pipeline.align.clock import ClockMap
+from pipeline.align.timeline import build_timeline
+from pipeline.config import Config, resolve_study
+from pipeline.errors import ScreenweaveError, StageError
+from pipeline.execution import Outcome, run_tasks
+from pipeline.ingest import load_study
+from pipeline.ingest.recordings import read_recording
+from pipeline.metrics.arousal import add_arousal, arousal_source
+from pipeline.metrics.session import session_metrics
+from pipeline.outputs import OutputFolder, sha256_file
+from pipeline.signals import process_recording
+from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
+
+CACHE_DIR = "cache/prepare"
+
+
+# ----------------------------------------------------------------- per-session tasks
+@dataclass
+class Prepared:
+    """Phase-1 result of one session: aligned timeline and signal facts."""
+
+    key: SessionKey
+    timeline: pd.DataFrame
+    scrs: pd.DataFrame
+    clock: ClockMap
+    flags: list[str]
+    invalid_share: dict[str, float]
+    methods: dict[str, str]
+    sampling_rate_hz: float
+    channels: list[str]
+    notes: list[str]
+    recording_nbytes: int = 0
+
+
+@dataclass
+class PrepareTask:
+    inputs: SessionInputs
+    cfg: Config
+
+
+def prepare_session(task: PrepareTask) -> Prepared:
+    """Read, process and align one session (pure apart from reading its recording)."""
+    inputs, cfg = task.inputs, task.cfg
+    signals = None
+    channels: list[str] = []
+    notes: list[str] = []
+    nbytes = 0
+    if inputs.recording_path is not None:
+        rec = read_recording(inputs.recording_path, cfg.signals)
+        channels = sorted(rec.channels)
+        notes.extend(rec.notes)
+        nbytes = rec.nbytes
+        signals = process_recording(rec, cfg.signals)
+        del rec
+        notes.extend(signals.notes)
+    aligned = build_timeline(inputs, signals, cfg.signals)
+    return Prepared(
+        key=inputs.key,
+        timeline=aligned.timeline,
+        scrs=aligned.scrs,
+        clock=aligned.clock,
+        flags=aligned.flags,
+        invalid_share=dict(signals.invalid_share) if signals else {},
+        methods=dict(signals.methods) if signals else {},
+        sampling_rate_hz=signals.sampling_rate_hz if signals else float("nan"),
+        channels=channels,
+        notes=notes,
+        recording_nbytes=nbytes,
+    )
+
+
+@dataclass
+class FinishTask:
+    inputs: SessionInputs
+    timeline: pd.DataFrame
+    mean: float
+    sd: float
+    cfg: Config
+    seed: int
+
+
+@dataclass
+class Finished:
+    key: SessionKey
+    timeline: pd.DataFrame
+    metrics: SessionMetrics
+    switch_locked: pd.DataFrame | None
+
+
+def finish_session(task: FinishTask) -> Finished:
+    """Arousal z-score, media metrics and switch-locked arousal of one session."""
+    timeline = add_arousal(task.timeline, task.mean, task.sd, task.cfg.arousal)
+    metrics = session_metrics(timeline, task.inputs, task.cfg)
+    locked = None
+    if _switch_locked is not None:
+        locked = _switch_locked(timeline, metrics.switches, task.seed)
+    return Finished(key=task.inputs.key, timeline=timeline, metrics=metrics,
+                    switch_locked=locked)
+
+
+def _optional(module: str, name: str) -> Callable | None:
+    import importlib
+
+    try:
+        return getattr(importlib.import_module(module), name)
+    except (ImportError, AttributeError):
+        return None
+
+
+_switch_locked = _optional("pipeline.metrics.switch_locked", "switch_locked_session")
+
+
+# -------------------------------------------------------------------- the whole run
+@dataclass
+class RunResult:
+    out: Path
+    sessions_total: int
+    sessions_ok: int
+    failures: list[dict]
+    summary: list[str]
+    manifest: dict = field(default_factory=dict)
+
+    @property
+    def partial(self) -> bool:
+        return self.sessions_ok < self.sessions_total
+
+
+def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list[str]]:
+    """Cut each session's inputs out of the study; note which coder each one uses."""
+    notes: list[str] = []
+    roster = study.roster.set_index("participant_id")["cohort"]
+    log = study.media_log
+    groups = {k: log_part for k, log_part in log.groupby(["participant_id", "session_id"],
+                                                          sort=False)}
+    sync = {k: part for k, part in study.sync.groupby(["participant_id", "session_id"],
+                                                      sort=False)}
+    out = []
+    for row in study.sessions.itertuples(index=False):
+        key = SessionKey(row.participant_id, row.session_id)
+        codes = groups.get((key.participant_id, key.session_id))
+        if codes is None:
+            codes = log.iloc[0:0]
+        coders = sorted(codes["coder"].unique().tolist())
+        coder = ""
+        if coders:
+            wanted = cfg.coding.primary_coder
+            coder = wanted if wanted in coders else coders[0]
+            if len(coders) > 1:
+                notes.append(f"{key.label()}: coded by {', '.join(coders)}; run uses "
+                             f"{coder!r}" + ("" if wanted in coders else
+                                             " (first in sorted order)"))
+        codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
+        pairs = sync.get((key.participant_id, key.session_id))
+        out.append(SessionInputs(
+            key=key,
+            cohort=str(roster[key.participant_id]),
+            duration_s=int(row.duration_s),
+            codes=codes.sort_values("second").reset_index(drop=True),
+            coder=coder,
+            sync_pairs=(pairs[["video_s", "sensor_s"]].to_numpy(dtype=float)
+                        if pairs is not None else np.empty((0, 2))),
+            recording_path=study.recordings.get(key),
+            platform_groups=study.platform_groups,
+        ))
+    return out, notes
+
+
+def _cache_key(inputs: SessionInputs, cfg: Config) -> str:
+    h = hashlib.sha256()
+    h.update(__version__.encode())
+    h.update(cfg.signals.fingerprint().encode())
+    h.update(str(inputs.duration_s).encode())
+    h.update(inputs.sync_pairs.tobytes())
+    h.update(pd.util.hash_pandas_object(inputs.codes, index=False).to_numpy().tobytes())
+    if inputs.recording_path is not None:
+        h.update(sha256_file(inputs.recording_path).encode())
+    return h.hexdigest()
+
+
+def _combine_moments(parts: list[tuple[int, float, float]]) -> tuple[float, float, int]:
+    """Pool (n, mean, M2) of several sessions (Chan et al. 1979 parallel update)."""
+    n, mean, m2 = 0, 0.0, 0.0
+    for nb, mb, m2b in parts:
+        if nb == 0:
+            continue
+        delta = mb - mean
+        tot = n + nb
+        mean += delta * nb / tot
+        m2 += m2b + delta**2 * n * nb / tot
+        n = tot
+    sd = float(np.sqrt(m2 / (n - 1))) if n >= 2 else float("nan")
+    return mean, sd, n
+
+
+def _moments(timeline: pd.DataFrame, cfg: Config) -> tuple[int, float, float]:
+    vals = arousal_source(timeline, cfg.arousal)
+    vals = vals[timeline["signal_valid"].to_numpy(dtype=bool)].to_numpy(dtype=float)
+    vals = vals[np.isfinite(vals)]
+    if len(vals) == 0:
+        return 0, 0.0, 0.0
+    mean = float(vals.mean())
+    return len(vals), mean, float(((vals - mean) ** 2).sum())
+
+
+def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
+            cfg: Config) -> dict:
+    tl = prep.timeline
+    coded = tl["coded"].to_numpy(dtype=bool)
+    # number of uncoded stretches inside the session
+    gaps = int(np.count_nonzero(np.diff(np.concatenate([[0], (~coded).astype(np.int8)])) == 1))
+    valid_coded = float((tl["signal_valid"].to_numpy(dtype=bool) & coded).sum())
+    usable_share = valid_coded / coded.sum() if coded.sum() else 0.0
+    flags = list(prep.flags) + (metrics.flags if metrics else [])
+    usable = bool(inp.recording_path is not None and usable_share >= cfg.qc.min_usable_share)
+    reason = ""
+    if inp.recording_path is None:
+        reason = "no recording"
+    elif not usable:
+        reason = (f"valid signal in {usable_share:.0%} of coded time, below "
+                  f"[qc] min_usable_share {cfg.qc.min_usable_share:.0%}")
+        flags.append("low_usable_share")
+    row = {
+        "participant_id": inp.key.participant_id,
+        "session_id": inp.key.session_id,
+        "cohort": inp.cohort,
+        "coder": inp.coder,
+        "duration_s": inp.duration_s,
+        "coded_seconds": int(coded.sum()),
+        "coverage": float(coded.mean()) if len(coded) else 0.0,
+        "uncoded_seconds": int((~coded).sum()),
+        "coverage_gaps": gaps,
+        "recording": inp.recording_path.name if inp.recording_path else "",
+        "sampling_rate_hz": prep.sampling_rate_hz,
+        "channels": ";".join(prep.channels),
+        "sync_pairs": prep.clock.n_pairs,
+        "sync_offset_s": prep.clock.offset_s,
+        "sync_drift_ppm": prep.clock.drift_ppm,
+        "sync_residual_s": prep.clock.residual_s,
+        "usable_share": usable_share,
+    }
+    for rule, share in sorted(prep.invalid_share.items()):
+        row[f"invalid_share_{rule}"] = float(share)
+    row.update({"usable": usable, "exclusion_reason": reason,
+                "flags": ";".join(dict.fromkeys(flags))})
+    return row
+
+
+class Progress:
+    """A tqdm bar over sessions on stderr (quiet when asked)."""
+
+    def __init__(self, total: int, desc: str, quiet: bool):
+        from tqdm import tqdm
+
+        self.bar = tqdm(total=total, desc=desc, unit="session", disable=quiet,
+                        file=sys.stderr, leave=False)
+
+    def step(self) -> None:
+        self.bar.update(1)
+
+    def close(self) -> None:
+        self.bar.close()
+
+
+def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
+              cluster: str | None = None, keep_going: bool = False, fresh: bool = False,
+              quiet: bool = False, report: bool = True,
+              log: Callable[[str], None] = print) -> RunResult:
+    """Run the whole pipeline on a study folder or study .toml; write OUT."""
+    started = time.perf_counter()
+    timings: dict[str, float] = {}
+    folder, cfg, cfg_file = resolve_study(target)
+    study = load_study(folder, cfg)
+    timings["ingest_s"] = time.perf_counter() - started
+    outdir = OutputFolder(Path(out))
+    inputs, coder_notes = session_inputs(study, cfg)
+    total = len(inputs)
+    failures: list[dict] = []
+
+    def failed(inp: SessionInputs, stage: str, outcome: Outcome) -> None:
+        failures.append({"participant_id": inp.key.participant_id,
+                         "session_id": inp.key.session_id, "stage": stage,
+                         "error": outcome.error, "hint": outcome.hint or ""})
+        if not keep_going:
+            raise StageError(outcome.error or "failed", unit=inp.key.label(), stage=stage,
+                             hint=(outcome.hint or "") + "; use --keep-going to run the "
+                             "other sessions and list every failure")
+
+    # -- phase 1: signals + align, cached
+    t0 = time.perf_counter()
+    prepared: dict[int, Prepared] = {}
+    todo: list[int] = []
+    keys: dict[int, str] = {}
+    for i, inp in enumerate(inputs):
+        keys[i] = _cache_key(inp, cfg)
+        cache = outdir.path(f"{CACHE_DIR}/{inp.key.stem()}.pkl")
+        if not fresh and cache.is_file():
+            try:
+                with open(cache, "rb") as fh:
+                    stored = pickle.load(fh)
+                if stored.get("key") == keys[i]:
+                    prepared[i] = stored["value"]
+                    continue
+            except Exception:  # a damaged cache entry is recomputed, never trusted
+                pass
+        todo.append(i)
+    bar = Progress(total, "signals", quiet)
+    for _ in prepared:
+        bar.step()
+    tasks = [PrepareTask(inputs[i], cfg) for i in todo]
+    try:
+        for j, outcome in run_tasks(prepare_session, tasks, workers=workers, cluster=cluster,
+                                    stop_on_error=not keep_going):
+            i = todo[j]
+            bar.step()
+            if not outcome.ok:
+                failed(inputs[i], "signals", outcome)
+                continue
+            prepared[i] = outcome.value
+            outdir._atomic(f"{CACHE_DIR}/{inputs[i].key.stem()}.pkl", "cache",
+                           lambda p, v=outcome.value, k=keys[i]: p.write_bytes(
+                               pickle.dumps({"key": k, "value": v})))
+    finally:
+        bar.close()
+    timings["signals_s"] = time.perf_counter() - t0
+    cached = total - len(todo)
+
+    # -- phase 2: within-participant arousal moments
+    by_participant: dict[str, list[tuple[int, float, float]]] = {}
+    for i, prep in prepared.items():
+        by_participant.setdefault(inputs[i].key.participant_id, []).append(
+            _moments(prep.timeline, cfg))
+    zstats = {pid: _combine_moments(parts) for pid, parts in by_participant.items()}
+
+    # -- phase 4: per-session metrics
+    t0 = time.perf_counter()
+    order = sorted(prepared)
+    finish_tasks = [FinishTask(inputs[i], prepared[i].timeline,
+                               zstats[inputs[i].key.participant_id][0],
+                               zstats[inputs[i].key.participant_id][1], cfg, seed=i)
+                    for i in order]
+    finished: dict[int, Finished] = {}
+    bar = Progress(len(finish_tasks), "metrics", quiet)
+    try:
+        for j, outcome in run_tasks(finish_session, finish_tasks, workers=workers,
+                                    cluster=cluster, stop_on_error=not keep_going):
+            i = order[j]
+            bar.step()
+            if not outcome.ok:
+                failed(inputs[i], "metrics", outcome)
+                continue
+            fin: Finished = outcome.value
+            finished[i] = fin
+            outdir.parquet(f"timeline/{fin.key.stem()}.parquet", fin.timeline, "align")
+            prepared[i].timeline = None  # free the memory; the file holds it now
+    finally:
+        bar.close()
+    timings["metrics_s"] = time.perf_counter() - t0
+
+    # -- phase 5: group tables
+    ok = sorted(finished)
+    qc = pd.DataFrame([_qc_row(inputs[i], prepared[i], finished[i].metrics, cfg) for i in ok])
+    usable = qc.set_index(["participant_id", "session_id"])["usable"] if len(qc) else None
+
+    def stack(attr: str) -> pd.DataFrame:
+        frames = [getattr(finished[i].metrics, attr) for i in ok]
+        frames = [f for f in frames if f is not None and len(f)]
+        return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+
+    sessions = pd.DataFrame([finished[i].metrics.session for i in ok])
+    if len(sessions):
+        sessions["usable"] = [bool(usable.loc[(p, s)]) for p, s in
+                              sessions[["participant_id", "session_id"]].itertuples(index=False)]
+    tables = {
+        "metrics/sessions.csv": sessions,
+        "metrics/states.csv": stack("states"),
+        "metrics/platforms.csv": stack("platforms"),
+        "metrics/groups.csv": stack("groups"),
+        "metrics/bouts.csv": stack("bouts"),
+        "metrics/switches.csv": stack("switches"),
+        "qc/sessions.csv": qc,
+    }
+    scr_frames = []
+    for i in ok:
+        s = prepared[i].scrs
+        if len(s):
+            s = s.copy()
+            s.insert(0, "session_id", inputs[i].key.session_id)
+            s.insert(0, "participant_id", inputs[i].key.participant_id)
+            scr_frames.append(s)
+    tables["signals/scrs.csv"] = (pd.concat(scr_frames, ignore_index=True) if scr_frames else
+                                  pd.DataFrame(columns=["participant_id", "session_id",
+                                                        "onset_video_s", "peak_video_s",
+                                                        "amplitude_us", "rise_time_s",
+                                                        "half_recovery_s"]))
+    for rel, df in tables.items():
+        stage = rel.split("/")[0]
+        outdir.csv(rel, df, stage)
+
+    summary = [f"ran {len(ok)} of {total} sessions"
+               + (f" ({cached} from cache)" if cached else "")]
+    methods: dict[str, dict] = {"signals": {}}
+    for i in ok:
+        methods["signals"].update(prepared[i].methods)
+    summary += _describe(study, cfg, sessions, qc)
+    summary += coder_notes
+
+    # -- models and group analyses
+    t0 = time.perf_counter()
+    summary += _group_analyses(study, cfg, tables, finished, ok, outdir, methods)
+    timings["models_s"] = time.perf_counter() - t0
+
+    manifest = {
+        "tool": "screenweave",
+        "version": __version__,
+        "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "study": cfg.study.name,
+        "study_folder": str(folder),
+        "config_file": str(cfg_file) if cfg_file else None,
+        "config": cfg.model_dump(mode="json"),
+        "platform_groups": study.platform_groups,
+        "vocabulary_declared": study.vocabulary_declared,
+        "inputs": {str(p.relative_to(folder)) if p.is_relative_to(folder) else str(p):
+                   sha256_file(p) for p in study.input_files},
+        "versions": _versions(),
+        "methods": methods,
+        "sessions_total": total,
+        "sessions_ok": len(ok),
+        "sessions_from_cache": cached,
+        "failures": failures,
+        "warnings": study.warnings,
+        "summary": summary,
+    }
+    if report:
+        t0 = time.perf_counter()
+        summary += _build_report(outdir, manifest)
+        timings["report_s"] = time.perf_counter() - t0
+    timings["total_s"] = time.perf_counter() - started
+    manifest["timings_s"] = timings
+    manifest["outputs"] = outdir.hashes()
+    outdir.json("manifest.json", manifest, "runner")
+    return RunResult(out=outdir.root, sessions_total=total, sessions_ok=len(ok),
+                     failures=failures, summary=summary, manifest=manifest)
+
+
+def _describe(study: Study, cfg: Config, sessions: pd.DataFrame, qc: pd.DataFrame) -> list[str]:
+    lines = []
+    if len(sessions):
+        per = sessions.groupby("cohort").size()
+        lines.append("sessions per cohort: " + ", ".join(f"{c} {n}" for c, n in per.items()))
+        rate = sessions.groupby("cohort")["switches_per_hour"].mean()
+        lines.append("mean switches per multi-platform hour: " + ", ".join(
+            f"{c} {v:.1f}" if np.isfinite(v) else f"{c} n/a" for c, v in rate.items()))
+    if len(qc):
+        counts: dict[str, int] = {}
+        for f in qc["flags"]:
+            for flag in filter(None, str(f).split(";")):
+                counts[flag] = counts.get(flag, 0) + 1
+        lines.append("flags raised: " + (", ".join(f"{k} ({v})" for k, v in sorted(counts.items()))
+                                         or "none"))
+        n_unusable = int((~qc["usable"]).sum())
+        if n_unusable:
+            lines.append(f"{n_unusable} session(s) flagged unusable"
+                         + (" and left out of the models" if cfg.qc.exclude_flagged_from_models
+                            else ""))
+    if not study.vocabulary_declared:
+        lines.append("no [platforms] vocabulary declared; codes seen: "
+                     + ", ".join(sorted(study.platform_groups)))
+    return lines
+
+
+def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
+                    finished: dict[int, Finished], ok: list[int], outdir: OutputFolder,
+                    methods: dict) -> list[str]:
+    """Models, switch-locked arousal and survey comparisons (where their modules exist)."""
+    lines: list[str] = []
+    compare = _optional("pipeline.models", "compare")
+    if compare is not None:
+        sessions = tables["metrics/sessions.csv"]
+        states = tables["metrics/states.csv"]
+        groups = tables["metrics/groups.csv"]
+        if cfg.qc.exclude_flagged_from_models and len(sessions):
+            keep = sessions.loc[sessions["usable"], ["participant_id", "session_id"]]
+            states = states.merge(keep, on=["participant_id", "session_id"]) if len(states) \
+                else states
+        results = compare(sessions, states, groups, study.roster, cfg.models, cfg.cohorts)
+        outdir.csv("models/comparisons.csv", results.comparisons, "models")
+        methods["models"] = results.methods
+        lines += results.summary
+    summarise = _optional("pipeline.metrics.switch_locked", "switch_locked_summary")
+    if summarise is not None and _switch_locked is not None:
+        parts = [finished[i].switch_locked for i in ok if finished[i].switch_locked is not None]
+        per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
+        traj, test, more = summarise(per_session, study.roster)
+        outdir.csv("metrics/switch_locked.csv", traj, "metrics")
+        outdir.csv("models/switch_locked_test.csv", test, "models")
+        lines += more
+    survey = _optional("pipeline.models", "compare_survey")
+    if survey is not None and study.survey is not None:
+        table = survey(study.survey, study.roster, cfg.models.fdr_q)
+        outdir.csv("models/survey.csv", table, "models")
+    return lines
+
+
+def _build_report(outdir: OutputFolder, manifest: dict) -> list[str]:
+    build = _optional("pipeline.report", "build_report")
+    if build is None:
+        return []
+    outdir.json("manifest.json", manifest, "runner")  # the report reads it
+    written = build(outdir.root)
+    for p in written:
+        outdir.record(Path(p), "report")
+    return [f"report: {len(written)} files (charts, report.html, deck.pptx)"]
+
+
+def _versions() -> dict[str, str]:
+    import importlib.metadata as md
+
+    out = {"python": platform.python_version()}
+    for dist in ("numpy", "pandas", "scipy", "statsmodels", "pyarrow", "pydantic", "altair",
+                 "vl-convert-python", "python-pptx"):
+        try:
+            out[dist] = md.version(dist)
+        except md.PackageNotFoundError:
+            pass
+    return out
+
+
+__all__ = ["run_study", "RunResult", "prepare_session", "finish_session", "ScreenweaveError"]

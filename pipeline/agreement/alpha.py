@@ -1,0 +1,101 @@
+"""Krippendorff's alpha for nominal data, any number of coders, missing values allowed."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from pipeline.errors import ConfigError
+
+
+def value_counts_by_unit(codes: pd.DataFrame, categories: list[str] | None = None
+                         ) -> tuple[np.ndarray, list[str]]:
+    """Units-by-categories count matrix from a units-by-coders table of labels.
+
+    Parameters
+    ----------
+    codes
+        One row per unit (e.g. a second), one column per coder; a label, or NA where
+        that coder did not code the unit.
+    categories
+        Category order; default: every label seen, sorted.
+
+    Returns
+    -------
+    counts, categories
+        ``counts[u, c]`` = how many coders gave unit ``u`` the label ``categories[c]``.
+    """
+    long = codes.stack(future_stack=True).dropna()
+    if categories is None:
+        categories = sorted(pd.unique(long.astype(str)).tolist())
+    index = {c: i for i, c in enumerate(categories)}
+    unit_pos = pd.Series(np.arange(len(codes)), index=codes.index)
+    u = unit_pos.loc[long.index.get_level_values(0)].to_numpy()
+    c = long.astype(str).map(index).to_numpy()
+    k = len(categories)
+    flat = np.bincount(u.astype(np.int64) * k + c.astype(np.int64), minlength=len(codes) * k)
+    return flat.reshape(len(codes), k), categories
+
+
+def coincidence_matrix(counts: np.ndarray) -> np.ndarray:
+    """Coincidence matrix ``o_ck`` of a units-by-categories count matrix.
+
+    Each unit coded by ``m_u >= 2`` coders contributes its ``m_u (m_u - 1)`` ordered
+    pairs of values, each weighted ``1 / (m_u - 1)``; units with fewer than two
+    values are not pairable and contribute nothing.
+
+    References
+    ----------
+    Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg
+    School for Communication, University of Pennsylvania (working paper).
+    """
+    counts = np.asarray(counts, dtype=float)
+    m = counts.sum(axis=1)
+    pairable = m >= 2
+    n = counts[pairable]
+    w = 1.0 / (m[pairable] - 1.0)
+    o = (n * w[:, None]).T @ n
+    o[np.diag_indices_from(o)] -= (n * w[:, None]).sum(axis=0)
+    return o
+
+
+def krippendorff_alpha_nominal(counts: np.ndarray) -> float:
+    """Krippendorff's alpha for nominal data from a units-by-categories count matrix.
+
+    ``alpha = 1 - D_o / D_e = 1 - (n - 1) * sum_{c != k} o_ck / sum_{c != k} n_c n_k``,
+    with ``o_ck`` the coincidence matrix, ``n_c`` its margins and ``n`` the number of
+    pairable values. NaN when undefined: fewer than two pairable values, or only one
+    category used across all pairable values (``D_e = 0``).
+
+    References
+    ----------
+    Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg
+    School for Communication, University of Pennsylvania (working paper).
+    """
+    o = coincidence_matrix(counts)
+    nc = o.sum(axis=1)
+    n = nc.sum()
+    if n < 2:
+        return float("nan")
+    disagree_observed = o.sum() - np.trace(o)
+    disagree_expected = (nc.sum() ** 2 - np.dot(nc, nc)) / (n - 1.0)
+    if disagree_expected <= 0:
+        return float("nan")
+    return float(1.0 - disagree_observed / disagree_expected)
+
+
+#: Reliability coefficients for any number of coders, by the name `method=` takes.
+ALPHA_METHODS = {
+    "nominal": krippendorff_alpha_nominal,  # Krippendorff 2011
+}
+
+
+def alpha(codes: pd.DataFrame, level: str = "nominal") -> float:
+    """Krippendorff's alpha of a units-by-coders label table (NA = not coded)."""
+    try:
+        fn = ALPHA_METHODS[level]
+    except KeyError:
+        raise ConfigError(f"unknown alpha level of measurement {level!r}",
+                          hint=f"choose one of {', '.join(sorted(ALPHA_METHODS))}") from None
+    counts, _ = value_counts_by_unit(codes)
+    return fn(counts)

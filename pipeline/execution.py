@@ -16,6 +16,9 @@ from typing import Any, Callable, Iterator, Sequence
 
 from pipeline.errors import ConfigError, ScreenweaveError
 
+#: How long to wait for a Dask scheduler to answer before giving up.
+DASK_CONNECT_TIMEOUT_S = 20
+
 
 @dataclass
 class Outcome:
@@ -103,7 +106,7 @@ def _run_dask(fn: Callable, args: Sequence[Any], address: str, stop_on_error: bo
         raise ConfigError("--cluster needs the Dask extra",
                           hint="pip install 'screenweave[dask]'") from None
     try:
-        client = Client(address, timeout="20s")
+        client = Client(address, timeout=f"{DASK_CONNECT_TIMEOUT_S}s")
     except (OSError, TimeoutError) as err:
         raise ConfigError(f"cannot reach the Dask scheduler at {address!r} ({err})",
                           hint="give the scheduler address, e.g. tcp://10.0.0.5:8786") from None

@@ -111,13 +111,31 @@ def _run_dask(fn: Callable, args: Sequence[Any], address: str, stop_on_error: bo
         raise ConfigError(f"cannot reach the Dask scheduler at {address!r} ({err})",
                           hint="give the scheduler address, e.g. tcp://10.0.0.5:8786") from None
     try:
-        futures = {client.submit(_call, fn, arg, pure=False): i for i, arg in enumerate(args)}
-        for fut in as_completed(futures):
+        # Like the local pool: a bounded number of tasks in flight per worker, so the
+        # client never holds every session's data at once.
+        n_workers = max(1, len(client.scheduler_info().get("workers", {})))
+        queue = iter(enumerate(args))
+        index: dict = {}
+        running = as_completed()
+
+        def submit_next() -> None:
+            try:
+                i, arg = next(queue)
+            except StopIteration:
+                return
+            fut = client.submit(_call, fn, arg, pure=False)
+            index[fut] = i
+            running.add(fut)
+
+        for _ in range(2 * n_workers):
+            submit_next()
+        for fut in running:
             out = fut.result()
-            yield futures[fut], out
+            yield index.pop(fut), out
             if stop_on_error and not out.ok:
-                for other in futures:
+                for other in index:
                     other.cancel()
                 return
+            submit_next()
     finally:
         client.close()

@@ -100,12 +100,23 @@ def prepare_session(task: PrepareTask) -> Prepared:
 
 @dataclass
 class FinishTask:
+    """Phase-3 work of one session. The timeline travels in the task (cluster runs) or
+    is re-read from the phase-1 cache file (local runs), so the runner never holds
+    every session's timeline in memory at once."""
+
     inputs: SessionInputs
-    timeline: pd.DataFrame
     mean: float
     sd: float
     cfg: Config
     seed: int
+    timeline: pd.DataFrame | None = None
+    cache_file: Path | None = None
+
+    def load_timeline(self) -> pd.DataFrame:
+        if self.timeline is not None:
+            return self.timeline
+        with open(self.cache_file, "rb") as fh:
+            return pickle.load(fh)["value"].timeline
 
 
 @dataclass
@@ -118,7 +129,7 @@ class Finished:
 
 def finish_session(task: FinishTask) -> Finished:
     """Arousal z-score, media metrics and switch-locked arousal of one session."""
-    timeline = add_arousal(task.timeline, task.mean, task.sd, task.cfg.arousal)
+    timeline = add_arousal(task.load_timeline(), task.mean, task.sd, task.cfg.arousal)
     metrics = session_metrics(timeline, task.inputs, task.cfg)
     locked = None
     if _switch_locked is not None:
@@ -137,6 +148,22 @@ def _optional(module: str, name: str) -> Callable | None:
 
 
 _switch_locked = _optional("pipeline.metrics.switch_locked", "switch_locked_session")
+
+
+class _Lazy:
+    """A sequence whose items are built when asked for (one task's data at a time)."""
+
+    def __init__(self, keys: list[int], make: Callable[[int], object]):
+        self.keys, self.make = keys, make
+
+    def __len__(self) -> int:
+        return len(self.keys)
+
+    def __getitem__(self, j: int):
+        return self.make(self.keys[j])
+
+    def __iter__(self):
+        return (self.make(k) for k in self.keys)
 
 
 # -------------------------------------------------------------------- the whole run
@@ -353,20 +380,27 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     timings["signals_s"] = time.perf_counter() - t0
     cached = total - len(todo)
 
-    # -- phase 2: within-participant arousal moments
+    # -- phase 2: within-participant arousal moments; timelines leave memory
     by_participant: dict[str, list[tuple[int, float, float]]] = {}
     for i, prep in prepared.items():
         by_participant.setdefault(inputs[i].key.participant_id, []).append(
             _moments(prep.timeline, cfg))
+        prep.timeline = None
     zstats = {pid: _combine_moments(parts) for pid, parts in by_participant.items()}
 
     # -- phase 4: per-session metrics
     t0 = time.perf_counter()
     order = sorted(prepared)
-    finish_tasks = [FinishTask(inputs[i], prepared[i].timeline,
-                               zstats[inputs[i].key.participant_id][0],
-                               zstats[inputs[i].key.participant_id][1], cfg, seed=i)
-                    for i in order]
+    def finish_task(i: int) -> FinishTask:
+        pid = inputs[i].key.participant_id
+        cache = outdir.path(f"{CACHE_DIR}/{inputs[i].key.stem()}.pkl")
+        task = FinishTask(inputs[i], zstats[pid][0], zstats[pid][1], cfg, seed=i,
+                          cache_file=cache)
+        if cluster:  # workers may not see this file system: ship the timeline
+            task.timeline = task.load_timeline()
+        return task
+
+    finish_tasks = _Lazy(order, finish_task)
     finished: dict[int, Finished] = {}
     bar = Progress(len(finish_tasks), "metrics", quiet)
     try:
@@ -380,7 +414,7 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
             fin: Finished = outcome.value
             finished[i] = fin
             outdir.parquet(f"timeline/{fin.key.stem()}.parquet", fin.timeline, "align")
-            prepared[i].timeline = None  # free the memory; the file holds it now
+            fin.timeline = None  # free the memory; the file holds it now
     finally:
         bar.close()
     timings["metrics_s"] = time.perf_counter() - t0

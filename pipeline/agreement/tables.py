@@ -1,0 +1,117 @@
+"""The study's agreement tables, from the per-session results.
+
+``study.csv`` holds one pooled row: the seconds of every session and coder pair are
+put in one contingency table (coder A in rows, as in each pair) before kappa is
+computed, and switch counts are summed before precision, recall and F1 are taken.
+Pooled alpha uses every second, of every session, coded by at least two coders.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from pipeline.agreement.alpha import krippendorff_alpha_nominal, value_counts_by_unit
+from pipeline.agreement.kappa import kappa, landis_koch_band, observed_agreement
+from pipeline.agreement.session import (
+    ALPHA_COLUMNS,
+    CONFUSION_COLUMNS,
+    MATCH_COLUMNS,
+    PAIR_COLUMNS,
+    SessionAgreement,
+)
+
+#: Columns of OUT/agreement/study.csv, in order.
+STUDY_COLUMNS = (
+    "sessions", "coder_pairs", "coders", "seconds_compared",
+    "agreement_attended", "kappa_attended", "kappa_attended_band",
+    "kappa_attended_median", "kappa_attended_min", "kappa_attended_max",
+    "agreement_state", "kappa_state", "kappa_state_band",
+    "switches_a", "switches_b", "switches_matched",
+    "switch_precision", "switch_recall", "switch_f1",
+    "alpha_attended", "alpha_state", "switch_tolerance_s", "switch_matching",
+)
+
+
+def _square(tidy: pd.DataFrame, a: str, b: str, cats: list[str] | None = None) -> np.ndarray:
+    table = tidy.pivot_table(index=a, columns=b, values="seconds", aggfunc="sum", fill_value=0)
+    if cats is None:
+        cats = sorted(set(table.index) | set(table.columns))
+    return table.reindex(index=cats, columns=cats, fill_value=0).to_numpy()
+
+
+def _ratio(num: float, den: float) -> float:
+    return float(num / den) if den > 0 else float("nan")
+
+
+def pooled_summary(results: list[SessionAgreement], tolerance_s: int,
+                   matching: str) -> dict:
+    """The study-level row of the agreement tables (see module docstring)."""
+    pairs = [p for r in results for p in r.pairs]
+    rows = pd.DataFrame([p.row for p in pairs], columns=list(PAIR_COLUMNS))
+    confusion = pd.concat([p.confusion for p in pairs], ignore_index=True) if pairs else \
+        pd.DataFrame(columns=list(CONFUSION_COLUMNS))
+    states = pd.concat([p.state_table for p in pairs], ignore_index=True) if pairs else \
+        pd.DataFrame(columns=["state_a", "state_b", "seconds"])
+    t_att = _square(confusion, "platform_a", "platform_b") if pairs else np.zeros((0, 0))
+    t_state = (_square(states, "state_a", "state_b", ["none", "single", "multi"])
+               if pairs else np.zeros((3, 3)))
+    k_att, k_state = kappa(t_att), kappa(t_state)
+    n_a, n_b = int(rows["switches_a"].sum()), int(rows["switches_b"].sum())
+    m = int(rows["switches_matched"].sum())
+
+    att = [r.labels for r in results if r.labels is not None]
+    st = [r.state_labels for r in results if r.state_labels is not None]
+    alpha_att = (krippendorff_alpha_nominal(value_counts_by_unit(
+        pd.concat(att, ignore_index=True))[0]) if att else float("nan"))
+    alpha_st = (krippendorff_alpha_nominal(value_counts_by_unit(
+        pd.concat(st, ignore_index=True))[0]) if st else float("nan"))
+    kappas = rows["kappa_attended"].astype(float)
+    coders = sorted({c for r in results if r.pairs for c in r.coders})
+    return {
+        "sessions": int(sum(1 for r in results if r.pairs)),
+        "coder_pairs": len(pairs),
+        "coders": ";".join(coders),
+        "seconds_compared": int(rows["seconds_compared"].sum()),
+        "agreement_attended": observed_agreement(t_att) if t_att.size else float("nan"),
+        "kappa_attended": k_att, "kappa_attended_band": landis_koch_band(k_att),
+        "kappa_attended_median": float(kappas.median()) if kappas.notna().any() else np.nan,
+        "kappa_attended_min": float(kappas.min()) if kappas.notna().any() else np.nan,
+        "kappa_attended_max": float(kappas.max()) if kappas.notna().any() else np.nan,
+        "agreement_state": observed_agreement(t_state),
+        "kappa_state": k_state, "kappa_state_band": landis_koch_band(k_state),
+        "switches_a": n_a, "switches_b": n_b, "switches_matched": m,
+        "switch_precision": _ratio(m, n_b), "switch_recall": _ratio(m, n_a),
+        "switch_f1": _ratio(2 * m, n_a + n_b),
+        "alpha_attended": alpha_att, "alpha_state": alpha_st,
+        "switch_tolerance_s": tolerance_s, "switch_matching": matching,
+    }
+
+
+def agreement_tables(results: list[SessionAgreement], tolerance_s: int,
+                     matching: str) -> dict[str, pd.DataFrame]:
+    """The tables of OUT/agreement/, by file name, from every session's result.
+
+    * ``sessions.csv``: one row per session and pair of coders (PAIR_COLUMNS);
+    * ``confusion.csv``: seconds per (platform of A, platform of B) and pair;
+    * ``alpha.csv``: one row per session with three or more coders;
+    * ``switch_matches.csv``: one row per matched pair of switches;
+    * ``study.csv``: one pooled row (:func:`pooled_summary`).
+    """
+    pairs = [p for r in results for p in r.pairs]
+
+    def cat(frames: list[pd.DataFrame], columns: tuple[str, ...]) -> pd.DataFrame:
+        frames = [f for f in frames if len(f)]
+        if not frames:
+            return pd.DataFrame(columns=list(columns))
+        return pd.concat(frames, ignore_index=True)[list(columns)]
+
+    return {
+        "sessions.csv": pd.DataFrame([p.row for p in pairs], columns=list(PAIR_COLUMNS)),
+        "confusion.csv": cat([p.confusion for p in pairs], CONFUSION_COLUMNS),
+        "alpha.csv": pd.DataFrame([r.alpha for r in results if r.alpha is not None],
+                                  columns=list(ALPHA_COLUMNS)),
+        "switch_matches.csv": cat([p.matches for p in pairs], MATCH_COLUMNS),
+        "study.csv": pd.DataFrame([pooled_summary(results, tolerance_s, matching)],
+                                  columns=list(STUDY_COLUMNS)),
+    }

@@ -1,0 +1,102 @@
+"""Per-cell checks of text columns: each bad cell becomes one problem with its line.
+
+Every function takes a :class:`~pipeline.ingest.csvfile.CsvTable`, a column and a
+:class:`~pipeline.errors.ProblemCollector`, adds a problem for each bad cell and
+returns the parsed values with a mask of the rows that passed. Checks are vectorised;
+only the bad rows are visited one by one to build their messages.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from pipeline.errors import ProblemCollector
+from pipeline.ingest.csvfile import CsvTable
+
+#: Integers above this cannot be a second of a session (about 285 million years);
+#: they also lose precision as float64 (2**53).
+MAX_INTEGER = 2**53
+
+
+def report(table: CsvTable, column: str, bad: np.ndarray, problems: ProblemCollector,
+           problem: str, hint: str | None = None, values: pd.Series | None = None) -> None:
+    """Add one problem per row where ``bad`` is True."""
+    vals = table.frame[column] if values is None else values
+    for row in np.flatnonzero(bad):
+        problems.add(table.label, problem, line=int(table.lines[row]), column=column,
+                     value=vals.iloc[row], hint=hint)
+
+
+def required_text(table: CsvTable, column: str, problems: ProblemCollector,
+                  what: str) -> np.ndarray:
+    """Mask of rows where ``column`` is not empty; empty cells are problems."""
+    empty = (table.frame[column] == "").to_numpy()
+    report(table, column, empty, problems, f"is empty: {what} is required")
+    return ~empty
+
+
+def non_negative_integers(table: CsvTable, column: str, problems: ProblemCollector,
+                          what: str) -> tuple[np.ndarray, np.ndarray]:
+    """Parse whole non-negative numbers ('12', also '12.0' as spreadsheets write them).
+
+    Returns (values as int64 with 0 where bad, mask of good rows).
+    """
+    text = table.frame[column]
+    numbers = pd.to_numeric(text.where(text.str.fullmatch(r"[+]?[0-9]+(\.0*)?"), None),
+                            errors="coerce").to_numpy(dtype=float)
+    good = np.isfinite(numbers) & (numbers >= 0) & (numbers < MAX_INTEGER)
+    empty = (text == "").to_numpy()
+    report(table, column, empty, problems, f"is empty: {what} is required",
+           hint="a whole number of seconds, 0 or more")
+    report(table, column, ~good & ~empty, problems,
+           f"is not a whole number of seconds, 0 or more ({what})",
+           hint="write whole seconds such as 0, 1, 2 (no decimals, signs or units)")
+    values = np.where(good, numbers, 0).astype(np.int64)
+    return values, good
+
+
+def finite_numbers(table: CsvTable, column: str, problems: ProblemCollector,
+                   what: str, hint: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse finite numbers (NaN, inf and text are problems).
+
+    Returns (values as float64 with NaN where bad, mask of good rows).
+    """
+    text = table.frame[column]
+    numbers = pd.to_numeric(text.str.replace(r"^\+", "", regex=True), errors="coerce")
+    numbers = numbers.to_numpy(dtype=float)
+    good = np.isfinite(numbers)
+    empty = (text == "").to_numpy()
+    report(table, column, empty, problems, f"is empty: {what} is required", hint=hint)
+    report(table, column, ~good & ~empty, problems,
+           f"is not a finite number ({what})", hint=hint or "write a number such as 12.5")
+    return np.where(good, numbers, np.nan), good
+
+
+def duplicated_rows(table: CsvTable, keys: list[str], mask: np.ndarray,
+                    problems: ProblemCollector, what: str, hint: str | None = None) -> np.ndarray:
+    """Flag rows (among ``mask``) whose ``keys`` repeat an earlier row; name that row.
+
+    Returns the mask of rows that are not repeats.
+    """
+    sub = table.frame.loc[mask, keys]
+    dup = sub.duplicated(keep=False).to_numpy()
+    out = np.zeros(len(table), dtype=bool)
+    if not dup.any():
+        out[mask] = True
+        return out
+    positions = np.flatnonzero(mask)
+    first_line: dict[tuple, int] = {}
+    repeat = np.zeros(len(table), dtype=bool)
+    for pos in positions[dup]:
+        key = tuple(table.frame.iloc[pos][k] for k in keys)
+        line = int(table.lines[pos])
+        if key in first_line:
+            repeat[pos] = True
+            problems.add(table.label, f"repeats {what} {'/'.join(key)!r} of line "
+                         f"{first_line[key]}", line=line, column=keys[-1],
+                         value=table.frame.iloc[pos][keys[-1]], hint=hint)
+        else:
+            first_line[key] = line
+    out[mask] = ~repeat[mask]
+    return out

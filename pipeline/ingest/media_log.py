@@ -1,0 +1,433 @@
+"""The media log: which platforms were in view and attended, second by second.
+
+Read from ``media_log.csv`` or from every ``media_log/*.csv`` (e.g. one file per
+coder), each file in either form of CONTRACT §1:
+
+* second-by-second: participant_id, session_id, second, in_view, attended[, coder];
+* intervals: participant_id, session_id, platform, start_s, end_s, role[, coder] with
+  role ``in_view`` or ``attended``, start inclusive, end exclusive. Intervals are turned
+  into the second-by-second form first. Every second of the *coded span* of a session
+  and coder, from its earliest ``start_s`` to its latest ``end_s``, is coded; a second
+  of the span that no in_view interval covers has nothing in view. Seconds outside the
+  span are uncoded.
+
+A file without a ``coder`` column gets its file stem as coder when ``media_log/``
+holds several files, else ''. The result has one row per coded second and coder, with
+``in_view`` normalised to the sorted unique codes joined by ';'.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from pipeline.errors import InputError, ProblemCollector
+from pipeline.ingest.cells import non_negative_integers, report
+from pipeline.ingest.csvfile import CsvTable, missing_columns, read_table
+from pipeline.ingest.sessions import session_rows
+
+KEYS = ["participant_id", "session_id"]
+SECOND_FORM = ["participant_id", "session_id", "second", "in_view", "attended"]
+INTERVAL_FORM = ["participant_id", "session_id", "platform", "start_s", "end_s", "role"]
+ROLES = ("in_view", "attended")
+COLUMNS = ["participant_id", "session_id", "second", "in_view", "attended", "coder"]
+#: Characters a platform code may not hold: ';' separates codes, '+' joins the fine state.
+RESERVED = (";", "+")
+
+
+@dataclass
+class Vocabulary:
+    """The platform codes allowed (None: every code is allowed and collected)."""
+
+    declared: set[str] | None
+    seen: set[str] = field(default_factory=set)
+
+    def unknown(self, codes: list[str]) -> list[str]:
+        if self.declared is None:
+            return []
+        return [c for c in codes if c not in self.declared]
+
+    def hint(self, code: str) -> str:
+        allowed = sorted(self.declared or [])
+        close = difflib.get_close_matches(code, allowed, n=1)
+        text = f"did you mean {close[0]!r}? " if close else ""
+        return text + (f"declared codes: {', '.join(allowed)}; add new codes to "
+                       "[platforms.groups] in study.toml")
+
+
+@dataclass
+class LogPart:
+    """One file's rows in second-by-second form, with where each row came from."""
+
+    frame: pd.DataFrame  # COLUMNS
+    label: str
+    lines: np.ndarray  # line of each row, -1 where none (span seconds of interval form)
+
+
+# ------------------------------------------------------------------------- files
+def media_log_files(root: Path, warnings: list[str]) -> list[tuple[Path, str]]:
+    """The media log file(s) of a study as (path, label), in sorted order."""
+    single = root / "media_log.csv"
+    folder = root / "media_log"
+    if single.is_file() and folder.is_dir():
+        raise InputError("media_log.csv", "and a media_log/ folder both exist",
+                         hint="keep either one media_log.csv or the files in media_log/")
+    if single.is_file():
+        return [(single, "media_log.csv")]
+    if folder.is_dir():
+        files, ignored = [], []
+        for path in sorted(folder.iterdir()):
+            if path.name.startswith("."):
+                continue
+            if path.is_file() and path.suffix.lower() == ".csv":
+                files.append((path, f"media_log/{path.name}"))
+            else:
+                ignored.append(path.name)
+        if ignored:
+            warnings.append(f"media_log/: ignored (not .csv files): {', '.join(ignored)}")
+        if not files:
+            raise InputError("media_log/", "holds no .csv file",
+                             hint="put the media log as media_log.csv or media_log/*.csv")
+        return files
+    raise InputError("media_log.csv", "is missing (no media_log.csv and no media_log/ folder)",
+                     hint="the study folder needs the second-by-second or interval media log")
+
+
+# ------------------------------------------------------------------- shared checks
+def _session_rows(table: CsvTable, sessions: pd.DataFrame,
+                  problems: ProblemCollector) -> tuple[np.ndarray, np.ndarray]:
+    """Position of each row's session in ``sessions`` (-1 if none) and its duration."""
+    pos = session_rows(table, sessions, problems, "media log")
+    duration = np.where(pos >= 0, sessions["duration_s"].to_numpy()[np.maximum(pos, 0)], 0)
+    return pos, duration.astype(np.int64)
+
+
+def _coders(table: CsvTable, fallback: str) -> pd.Series:
+    if "coder" in table.columns:
+        coder = table.frame["coder"]
+        return coder.where(coder != "", fallback)
+    return pd.Series(fallback, index=table.frame.index, dtype=object)
+
+
+def _split_codes(cell: str) -> list[str]:
+    return sorted({part.strip() for part in cell.split(";")} - {""})
+
+
+# ------------------------------------------------------------ second-by-second form
+def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, coder: str,
+                 problems: ProblemCollector) -> LogPart:
+    frame = table.frame
+    if "attended" not in table.columns:
+        problems.add(table.label, "has no column 'attended' (required for the second-by-second "
+                     f"form: {', '.join(SECOND_FORM)})", line=table.header_line,
+                     column="attended",
+                     hint="add an attended column; leave it empty where nothing was attended")
+        return LogPart(pd.DataFrame(columns=COLUMNS), table.label, np.zeros(0, np.int64))
+    pos, duration = _session_rows(table, sessions, problems)
+    ok = pos >= 0
+    second, good_second = non_negative_integers(table, "second", problems, "second")
+    late = ok & good_second & (second >= duration)
+    for row in np.flatnonzero(late):
+        problems.add(table.label, f"is past the session's end (the session lasts "
+                     f"{duration[row]} s, so seconds run 0 to {duration[row] - 1})",
+                     line=int(table.lines[row]), column="second", value=frame["second"].iloc[row],
+                     hint="second counts from the session start; check start/end in "
+                     "sessions.csv")
+    ok &= good_second & ~late
+
+    # in_view: normalise each distinct cell once, then map back to rows
+    inverse, uniq = pd.factorize(frame["in_view"], sort=False)
+    norm, reserved, unknown = [], [], []
+    for cell in uniq:
+        codes = _split_codes(cell)
+        norm.append(";".join(codes))
+        reserved.append([c for c in codes if "+" in c])
+        unknown.append(vocab.unknown(codes))
+        vocab.seen.update(codes)
+    norm_rows = np.asarray(norm, dtype=object)[inverse] if len(uniq) else np.zeros(0, object)
+    bad_codes = np.zeros(len(table), dtype=bool)
+    for u in range(len(uniq)):
+        if not (reserved[u] or unknown[u]):
+            continue
+        rows = inverse == u
+        bad_codes |= rows
+        if reserved[u]:
+            report(table, "in_view", rows, problems,
+                   f"holds code {reserved[u][0]!r} with a '+', which is reserved for joining "
+                   "codes", hint="rename the platform code without '+' (e.g. 'tv_phone')")
+        else:
+            report(table, "in_view", rows, problems,
+                   f"holds code {unknown[u][0]!r}, which is not in the [platforms] vocabulary",
+                   hint=vocab.hint(unknown[u][0]))
+    ok &= ~bad_codes
+
+    # attended: one code, one of in_view; each distinct (in_view, attended) checked once
+    attended = frame["attended"]
+    pairs = pd.MultiIndex.from_arrays([pd.Index(norm_rows, dtype=object),
+                                       pd.Index(attended.to_numpy(), dtype=object)])
+    pinverse, upairs = pairs.factorize()
+    verdict = []
+    for view, att in upairs:
+        if att == "":
+            verdict.append("")
+        elif ";" in att:
+            verdict.append("several")
+        elif att not in view.split(";"):
+            verdict.append("not_in_view")
+        else:
+            verdict.append("")
+    verdict_rows = np.asarray(verdict, dtype=object)[pinverse] if len(upairs) else \
+        np.zeros(0, object)
+    several = verdict_rows == "several"
+    report(table, "attended", several, problems,
+           "names more than one platform: attended is the one platform looked at",
+           hint="keep one code in attended; the others belong in in_view")
+    not_in_view = np.flatnonzero(verdict_rows == "not_in_view")
+    for row in not_in_view:
+        view = norm_rows[row] or "nothing"
+        problems.add(table.label, f"is not one of the platforms in view ({view})",
+                     line=int(table.lines[row]), column="attended",
+                     value=attended.iloc[row],
+                     hint="attended must be empty or one of in_view")
+    ok &= verdict_rows == ""
+
+    out = pd.DataFrame({
+        "participant_id": frame["participant_id"],
+        "session_id": frame["session_id"],
+        "second": second,
+        "in_view": norm_rows,
+        "attended": attended,
+        "coder": _coders(table, coder),
+    })
+    return LogPart(out[ok].reset_index(drop=True), table.label, table.lines[ok])
+
+
+# --------------------------------------------------------------------- interval form
+def _expand(starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """For intervals [start, end): (interval index of each second, the second)."""
+    lengths = (ends - starts).astype(np.int64)
+    which = np.repeat(np.arange(len(starts)), lengths)
+    offsets = np.repeat(np.cumsum(lengths) - lengths, lengths)
+    seconds = starts[which] + (np.arange(lengths.sum()) - offsets)
+    return which, seconds.astype(np.int64)
+
+
+def _interval_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, coder: str,
+                   problems: ProblemCollector) -> LogPart:
+    frame = table.frame
+    pos, duration = _session_rows(table, sessions, problems)
+    ok = pos >= 0
+    start, good_start = non_negative_integers(table, "start_s", problems, "start_s")
+    end, good_end = non_negative_integers(table, "end_s", problems, "end_s")
+    timed = good_start & good_end
+    backwards = timed & (end <= start)
+    report(table, "end_s", backwards, problems,
+           "is not after start_s: an interval covers start_s up to, not including, end_s",
+           hint="end_s must be larger than start_s (a one-second interval is 5,6)")
+    late = ok & timed & ~backwards & (end > duration)
+    for row in np.flatnonzero(late):
+        problems.add(table.label, f"is past the session's end (the session lasts "
+                     f"{duration[row]} s, so end_s is at most {duration[row]})",
+                     line=int(table.lines[row]), column="end_s", value=frame["end_s"].iloc[row],
+                     hint="start_s and end_s count from the session start; check start/end "
+                     "in sessions.csv")
+    ok &= timed & ~backwards & ~late
+    role = frame["role"]
+    bad_role = ~role.isin(ROLES).to_numpy()
+    report(table, "role", bad_role, problems, "is not a role of the interval form",
+           hint="role is in_view or attended")
+    ok &= ~bad_role
+    platform = frame["platform"]
+    empty = (platform == "").to_numpy()
+    report(table, "platform", empty, problems, "is empty: every interval names one platform")
+    reserved = platform.str.contains(r"[;+]", regex=True).to_numpy()
+    report(table, "platform", reserved, problems,
+           "holds ';' or '+': an interval names one platform code, and these characters "
+           "are reserved", hint="one row per platform; rename codes holding '+'")
+    unknown_codes = set(vocab.unknown(sorted(set(platform[~empty & ~reserved]))))
+    unknown = platform.isin(unknown_codes).to_numpy()
+    for row in np.flatnonzero(unknown):
+        code = platform.iloc[row]
+        problems.add(table.label, "is not in the [platforms] vocabulary",
+                     line=int(table.lines[row]), column="platform", value=code,
+                     hint=vocab.hint(code))
+    ok &= ~empty & ~reserved & ~unknown
+    vocab.seen.update(set(platform[ok]))
+
+    iv = pd.DataFrame({
+        "participant_id": frame["participant_id"], "session_id": frame["session_id"],
+        "coder": _coders(table, coder), "platform": platform, "role": role,
+        "start": start, "end": end, "line": table.lines,
+    })[ok].reset_index(drop=True)
+    if iv.empty:
+        return LogPart(pd.DataFrame(columns=COLUMNS), table.label, np.zeros(0, np.int64))
+
+    span_keys = ["participant_id", "session_id", "coder"]
+    grouped = iv.groupby(span_keys, sort=True)
+    span_id = grouped.ngroup().to_numpy()
+    spans = grouped.agg(lo=("start", "min"), hi=("end", "max")).reset_index()
+    lo, hi = spans["lo"].to_numpy(), spans["hi"].to_numpy()
+    which_span, base_second = _expand(lo, hi)
+    span_offset = np.cumsum(hi - lo) - (hi - lo)
+    n_base = len(base_second)
+
+    codes = sorted(iv["platform"].unique())
+    code_of = {c: i for i, c in enumerate(codes)}
+    code_idx = iv["platform"].map(code_of).to_numpy()
+    istart, iend = iv["start"].to_numpy(), iv["end"].to_numpy()
+    line_of = np.full(n_base, -1, dtype=np.int64)
+
+    # in view: one boolean per (second, code), then each distinct combination to text
+    view = iv["role"].to_numpy() == "in_view"
+    which, sec = _expand(istart[view], iend[view])
+    rows_v = np.flatnonzero(view)[which]
+    base_row = span_offset[span_id[rows_v]] + sec - lo[span_id[rows_v]]
+    in_view = np.zeros((n_base, len(codes)), dtype=bool)
+    in_view[base_row, code_idx[rows_v]] = True
+    line_of[base_row] = iv["line"].to_numpy()[rows_v]
+    combos, combo_of = np.unique(in_view, axis=0, return_inverse=True)
+    combo_text = np.asarray([";".join(c for c, on in zip(codes, combo) if on) for combo in combos],
+                            dtype=object)
+    in_view_text = combo_text[np.asarray(combo_of).reshape(-1)]
+
+    # attended: at most one platform per second, and that platform in view
+    att = ~view
+    which, sec = _expand(istart[att], iend[att])
+    rows_a = np.flatnonzero(att)[which]
+    base_a = span_offset[span_id[rows_a]] + sec - lo[span_id[rows_a]]
+    cells = pd.DataFrame({"base": base_a, "code": code_idx[rows_a], "row": rows_a,
+                          "second": sec}).drop_duplicates(["base", "code"])
+    clash = cells[cells.duplicated("base", keep=False)].sort_values(["base", "row"])
+    by_base = clash.groupby("base", sort=True)
+    pairs = pd.DataFrame({"first": by_base["row"].nth(0).to_numpy(),
+                          "other": by_base["row"].nth(1).to_numpy(),
+                          "second": by_base["second"].first().to_numpy()})
+    for first, other, second in pairs.drop_duplicates(["first", "other"]).itertuples(
+            index=False):
+        problems.add(table.label, f"is attended at second {int(second)} while "
+                     f"{iv['platform'].iloc[other]!r} (line {int(iv['line'].iloc[other])}) is "
+                     "attended too: one platform is attended at a time",
+                     line=int(iv["line"].iloc[first]), column="platform",
+                     value=iv["platform"].iloc[first],
+                     hint="attended intervals of different platforms may not overlap")
+    not_seen = ~in_view[cells["base"].to_numpy(), cells["code"].to_numpy()]
+    for row, group in cells[not_seen].groupby("row", sort=True):
+        problems.add(table.label, f"is attended from second {int(group['second'].min())} but not "
+                     "in view then: no in_view interval of this platform covers it",
+                     line=int(iv["line"].iloc[row]), column="platform",
+                     value=iv["platform"].iloc[row],
+                     hint="every attended second must also lie in an in_view interval of the "
+                     "same platform")
+    attended = np.full(n_base, "", dtype=object)
+    attended[cells["base"].to_numpy()] = iv["platform"].to_numpy()[cells["row"].to_numpy()]
+
+    out = pd.DataFrame({
+        "participant_id": spans["participant_id"].to_numpy()[which_span],
+        "session_id": spans["session_id"].to_numpy()[which_span],
+        "second": base_second,
+        "in_view": in_view_text,
+        "attended": attended,
+        "coder": spans["coder"].to_numpy()[which_span],
+    })
+    return LogPart(out, table.label, line_of)
+
+
+# --------------------------------------------------------------------------- whole log
+FORMS = {"second-by-second": SECOND_FORM, "interval": INTERVAL_FORM}
+
+
+def _form_of(table: CsvTable, problems: ProblemCollector) -> str | None:
+    cols = set(table.columns)
+    second_cols = {"second", "in_view"} & cols
+    interval_cols = {"platform", "start_s", "end_s", "role"} & cols
+    if second_cols and interval_cols:
+        problems.add(table.label, "mixes the columns of both media log forms "
+                     f"({', '.join(sorted(second_cols | interval_cols))})",
+                     line=table.header_line,
+                     hint=f"use either {', '.join(SECOND_FORM)} or {', '.join(INTERVAL_FORM)}")
+        return None
+    form = "interval" if interval_cols else "second-by-second"
+    required = [c for c in FORMS[form] if c != "attended"]
+    before = len(problems.problems)
+    missing_columns(table.label, table.columns, required, table.header_line, problems,
+                    form=f"the {form} form")
+    if len(problems.problems) > before:
+        if not (second_cols or interval_cols):
+            problems.add(table.label, "is in neither media log form", line=table.header_line,
+                         hint=f"second-by-second: {', '.join(SECOND_FORM)}; intervals: "
+                         f"{', '.join(INTERVAL_FORM)}")
+        return None
+    return form
+
+
+def _duplicates(parts: list[LogPart], problems: ProblemCollector) -> None:
+    keys = ["participant_id", "session_id", "second", "coder"]
+    frames = []
+    for i, part in enumerate(parts):
+        f = part.frame[keys].copy()
+        f["part"], f["line"] = i, part.lines
+        frames.append(f)
+    every = pd.concat(frames, ignore_index=True)
+    dup = every.duplicated(keys, keep=False)
+    if not dup.any():
+        return
+    d = every[dup]
+    first = d.groupby(keys, sort=False)[["part", "line"]].transform("first")
+    later = d.duplicated(keys, keep="first").to_numpy()
+    d, first = d[later], first[later]
+    labels = [p.label for p in parts]
+    for pid, sid, second, coder, part, line, fpart, fline in zip(
+            d["participant_id"], d["session_id"], d["second"], d["coder"], d["part"],
+            d["line"], first["part"], first["line"]):
+        where = f"line {fline}" if fline >= 0 else "an interval span"
+        if fpart != part:
+            where += f" of {labels[fpart]}"
+        who = f" by coder {coder!r}" if coder else ""
+        problems.add(labels[part], f"codes second {second} of session {pid}/{sid}{who} again "
+                     f"(already coded on {where})", line=int(line) if line >= 0 else None,
+                     column="second", value=second,
+                     hint="each (participant, session, second, coder) is coded once")
+
+
+def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None,
+                   problems: ProblemCollector,
+                   warnings: list[str]) -> tuple[pd.DataFrame, set[str], list[Path]]:
+    """Read and check every media log file of the study.
+
+    Returns (the log in second-by-second form with columns :data:`COLUMNS`, the codes
+    seen, the files read). Problems of every file are added to ``problems``.
+    """
+    files = media_log_files(root, warnings)
+    several = len(files) > 1
+    vocab = Vocabulary(declared)
+    parts: list[LogPart] = []
+    for path, label in files:
+        try:
+            table = read_table(path, label, KEYS)
+        except InputError as err:
+            problems.extend(err.problems)
+            continue
+        form = _form_of(table, problems)
+        if form is None:
+            continue
+        coder = path.stem if several else ""
+        if form == "interval":
+            parts.append(_interval_form(table, sessions, vocab, coder, problems))
+        else:
+            parts.append(_second_form(table, sessions, vocab, coder, problems))
+    parts = [p for p in parts if len(p.frame)]
+    if parts:
+        _duplicates(parts, problems)
+        log = pd.concat([p.frame for p in parts], ignore_index=True)
+    else:
+        log = pd.DataFrame({c: pd.Series(dtype=object) for c in COLUMNS})
+    log["second"] = log["second"].astype(np.int64)
+    for c in ("participant_id", "session_id", "in_view", "attended", "coder"):
+        log[c] = log[c].astype(object)
+    log = log.sort_values(["participant_id", "session_id", "coder", "second"],
+                          kind="stable").reset_index(drop=True)
+    return log, vocab.seen, [path for path, _ in files]

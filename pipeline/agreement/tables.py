@@ -17,9 +17,14 @@ from pipeline.agreement.session import (
     ALPHA_COLUMNS,
     CONFUSION_COLUMNS,
     MATCH_COLUMNS,
+    NONE,
     PAIR_COLUMNS,
     SessionAgreement,
+    session_agreement,
 )
+from pipeline.config import Config
+from pipeline.errors import InputError
+from pipeline.types import SessionKey, Study
 
 #: Columns of OUT/agreement/study.csv, in order.
 STUDY_COLUMNS = (
@@ -115,3 +120,27 @@ def agreement_tables(results: list[SessionAgreement], tolerance_s: int,
         "study.csv": pd.DataFrame([pooled_summary(results, tolerance_s, matching)],
                                   columns=list(STUDY_COLUMNS)),
     }
+
+
+def study_agreement(study: Study, cfg: Config) -> list[SessionAgreement]:
+    """Every session's agreement result (sessions with one coder give no pairs).
+
+    Uses ``cfg.agreement`` and, so that switches are the run's switches,
+    ``cfg.switching`` and ``cfg.dwell``.
+    """
+    log = study.media_log
+    clash = log["attended"].astype(str) == NONE
+    if clash.any():
+        raise InputError(
+            "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
+            "tables name 'nothing attended'", column="attended", value=NONE,
+            hint="rename the platform code (e.g. 'none_device'); leave attended empty "
+            "for nothing attended")
+    durations = study.sessions.set_index(["participant_id", "session_id"])["duration_s"]
+    results: list[SessionAgreement] = []
+    for (pid, sid), codes in log.groupby(["participant_id", "session_id"], sort=True):
+        key = SessionKey(str(pid), str(sid))
+        results.append(session_agreement(
+            key, codes[["second", "in_view", "attended", "coder"]], int(durations[(pid, sid)]),
+            cfg.agreement, cfg.switching, cfg.dwell))
+    return results

@@ -42,7 +42,7 @@ def two_coders() -> pd.DataFrame:
 
 def run(codes: pd.DataFrame, **agreement) -> SessionAgreement:
     return session_agreement(KEY, codes, 20, AgreementSettings(**agreement), SwitchSettings(),
-                            DwellSettings())
+                             DwellSettings())
 
 
 def test_two_coder_session_row_worked_by_hand():

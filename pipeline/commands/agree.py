@@ -1,0 +1,96 @@
+"""`screenweave agree STUDY --out OUT`: agreement between coders of the same sessions."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import typer
+
+from pipeline.cli import app, guarded
+
+#: Where the agreement tables go inside OUT.
+FOLDER = "agreement"
+
+
+def _pct(x: float) -> str:
+    return "n/a" if not np.isfinite(x) else f"{100 * x:.1f} %"
+
+
+def _num(x: float) -> str:
+    return "n/a" if not np.isfinite(x) else f"{x:.2f}"
+
+
+def summary_lines(study_row: dict, n_sessions: int, n_alpha: int) -> list[str]:
+    """A short readable summary of the pooled agreement row."""
+    r = study_row
+    band = f" ({r['kappa_attended_band']})" if r["kappa_attended_band"] else ""
+    sband = f" ({r['kappa_state_band']})" if r["kappa_state_band"] else ""
+    lines = [
+        f"agreement: {r['sessions']} of {n_sessions} sessions coded by two or more coders "
+        f"({r['coder_pairs']} coder pairs, {r['seconds_compared']} seconds compared; "
+        f"coders {r['coders'].replace(';', ', ')})",
+        f"  attended platform: {_pct(r['agreement_attended'])} agreement, "
+        f"Cohen's kappa {_num(r['kappa_attended'])}{band}; per session-pair kappa "
+        f"{_num(r['kappa_attended_min'])} to {_num(r['kappa_attended_max'])}, "
+        f"median {_num(r['kappa_attended_median'])}",
+        f"  state (none/single/multi): {_pct(r['agreement_state'])} agreement, "
+        f"Cohen's kappa {_num(r['kappa_state'])}{sband}",
+        f"  switches within {r['switch_tolerance_s']} s ({r['switch_matching']} matching): "
+        f"{r['switches_matched']} matched of {r['switches_a']} (coder A) and "
+        f"{r['switches_b']} (coder B); precision {_num(r['switch_precision'])}, "
+        f"recall {_num(r['switch_recall'])}, F1 {_num(r['switch_f1'])}",
+    ]
+    if n_alpha:
+        lines.append(f"  Krippendorff's alpha ({n_alpha} sessions with three or more coders "
+                     "in alpha.csv); pooled over every session: attended "
+                     f"{_num(r['alpha_attended'])}, state {_num(r['alpha_state'])}")
+    return lines
+
+
+@app.command()
+@guarded
+def agree(
+    study: Path = typer.Argument(..., help="Study folder, or a .toml whose [study] data_dir "
+                                 "names one."),
+    out: Path = typer.Option(..., "--out", "-o", help="Output folder (created if missing); "
+                             "tables go to OUT/agreement/."),
+    tolerance: int | None = typer.Option(None, "--tolerance", min=0,
+                                  help="Seconds two coders' switches may differ and still "
+                                  "match; overrides [agreement] switch_tolerance_s "
+                                  "(default 2)."),
+) -> None:
+    """Agreement between coders of the same sessions: kappa, alpha and switch matching.
+
+    Needs sessions coded by two or more coders (a `coder` column in the media log, or
+    one media_log/*.csv file per coder). Writes OUT/agreement/sessions.csv (one row per
+    session and pair of coders), confusion.csv, alpha.csv, switch_matches.csv and
+    study.csv (pooled).
+    """
+    from pipeline.agreement.tables import agreement_tables, study_agreement
+    from pipeline.config import AgreementSettings, resolve_study
+    from pipeline.errors import InputError
+    from pipeline.ingest import load_study
+    from pipeline.outputs import OutputFolder
+
+    folder, cfg, _ = resolve_study(study)
+    if tolerance is not None:
+        settings = AgreementSettings(**{**cfg.agreement.model_dump(),
+                                        "switch_tolerance_s": tolerance})
+        cfg = cfg.model_copy(update={"agreement": settings})
+    data = load_study(folder, cfg)
+    results = study_agreement(data, cfg)
+    if not any(r.pairs for r in results):
+        raise InputError(
+            "media_log.csv", "no session is coded by two or more coders", column="coder",
+            hint="give the media log a coder column with two coders' rows for the same "
+            "session, or put one file per coder in media_log/")
+    tables = agreement_tables(results, cfg.agreement.switch_tolerance_s,
+                              cfg.agreement.switch_matching)
+    target = OutputFolder(out)
+    for name, table in tables.items():
+        target.csv(f"{FOLDER}/{name}", table, stage="agreement")
+    for line in summary_lines(tables["study.csv"].iloc[0].to_dict(), len(data.sessions),
+                              len(tables["alpha.csv"])):
+        typer.echo(line)
+    typer.echo(f"wrote {target.path(FOLDER)}")

@@ -224,6 +224,11 @@ def fit_mixed(
                          notes=[f"not fitted: {n_obs} rows in {n_groups} participant(s) are "
                                 f"too few for {X.shape[1]} fixed effects"])
 
+    if np.nanmax(y) - np.nanmin(y) <= 1e-12 * max(1.0, float(np.nanmax(np.abs(y)))):
+        return FitResult(_empty_terms(names), {}, converged=False, fitted=False, n_obs=n_obs,
+                         n_groups=n_groups,
+                         notes=["not fitted: every value of the outcome is the same"])
+
     notes: list[str] = []
     failures: list[str] = []
     result, used = None, None
@@ -256,12 +261,13 @@ def fit_mixed(
         notes.insert(0, "did not converge (" + "; ".join(failures) + "): estimates are "
                      "the optimiser's last values and not to be trusted")
 
-    est = np.asarray(result.fe_params, float)
-    k = len(est)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        se = np.sqrt(np.clip(np.diag(np.asarray(result.cov_params()))[:k], 0, None))
-        se = np.where(np.diag(np.asarray(result.cov_params()))[:k] > 0, se, np.nan)
+        est = np.asarray(result.fe_params, float)
+        k = len(est)
+        var_fe = np.diag(np.asarray(result.cov_params(), float))[:k]
+        se = np.where(var_fe > 0, np.sqrt(np.clip(var_fe, 0, None)), np.nan)
+        reml = float(-2 * result.llf)
     if not np.all(np.isfinite(se)):
         notes.append("standard errors could not be computed for some terms (the curvature "
                      "of the likelihood is not positive there)")
@@ -279,6 +285,9 @@ def fit_mixed(
         notes.append("participant variance at zero (boundary fit): sessions of one "
                      "participant are no more alike than sessions of different participants "
                      "here, so the model reduces to one that treats sessions as independent")
+    if total > 0 and scale / total < zero_variance_share:
+        notes.append("residual variance at zero (singular fit): the rows of each participant "
+                     "have (almost) the same value")
     return FitResult(terms, variances, converged=converged, fitted=True, n_obs=n_obs,
                      n_groups=n_groups, notes=notes, cov_re=cov_re, scale=scale,
-                     reml_criterion=float(-2 * result.llf), optimiser=used)
+                     reml_criterion=reml, optimiser=used)

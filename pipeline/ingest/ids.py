@@ -39,7 +39,8 @@ def check_ids(table: CsvTable, column: str, problems: ProblemCollector, what: st
            hint=f"a {what} is {ID_RULE}")
     for row in np.flatnonzero(~good & ~empty):
         value = text.iloc[row]
-        problems.add(table.label, f"is not a valid {what}: allowed are {ID_RULE}",
+        length = f" ({len(value)} characters)" if len(value) > 64 else ""
+        problems.add(table.label, f"is not a valid {what}{length}: allowed are {ID_RULE}",
                      line=int(table.lines[row]), column=column, value=value,
                      hint=f"e.g. {suggest_id(value)!r}")
     return good

@@ -106,3 +106,44 @@ def tree_hashes(root: Path) -> dict[str, str]:
     """sha256 of every file under ``root``, by relative path."""
     return {p.relative_to(root).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
             for p in sorted(root.rglob("*")) if p.is_file()}
+
+
+def load(root: Path):
+    """resolve_study + load_study, as the commands do."""
+    from pipeline.config import resolve_study
+    from pipeline.ingest import load_study
+
+    folder, cfg, _ = resolve_study(root)
+    return load_study(folder, cfg)
+
+
+def refusal(root: Path):
+    """The InputError load_study raises for the study at ``root``."""
+    import pytest
+
+    from pipeline.errors import InputError
+
+    with pytest.raises(InputError) as info:
+        load(root)
+    return info.value
+
+
+def assert_names(err, file: str, line: int | None, column: str | None, value, *,
+                 says: str | None = None) -> None:
+    """One problem of ``err`` names this file, line, column and value, in its message too."""
+    where = file + (f", line {line}" if line is not None else "")
+    where += f", column {column!r}" if column is not None else ""
+    text = err.render()
+    matching = [p for p in err.problems
+                if p.file == file and p.line == line and p.column == column
+                and (value is None or str(p.value) == str(value))]
+    assert matching, f"no problem at {where} with value {value!r} in:\n{text}"
+    rendered = [p.render() for p in matching]
+    assert any(r.startswith(where + ": ") for r in rendered), rendered
+    if value is not None:
+        from pipeline.errors import _short
+
+        assert any(f"value {_short(value)!r}" in r for r in rendered), rendered
+    if says is not None:
+        assert any(says in r for r in rendered), f"{says!r} not in {rendered}"
+    assert all(r in text for r in rendered[:1])

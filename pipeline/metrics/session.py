@@ -95,7 +95,12 @@ def session_metrics(timeline: pd.DataFrame, inputs: SessionInputs, cfg: Config) 
     if coded_s == 0:
         flags.append(FLAG_NO_CODED_SECONDS)
 
-    bouts = find_bouts(timeline, cfg.switching, cfg.dwell)
+    dwell_cfg = cfg.dwell
+    if inputs.recording_path is None:
+        # No recording at all is not "invalid signal": a coding-only session's bouts
+        # are censored only at session edges and uncoded gaps.
+        dwell_cfg = dwell_cfg.model_copy(update={"censor_at_invalid_signal": False})
+    bouts = find_bouts(timeline, cfg.switching, dwell_cfg)
     switches = find_switches(bouts, timeline, cfg.switching)
     enough_multi = multi_s > 0 and multi_s / 60.0 >= cfg.switching.min_multi_minutes
     if enough_multi:

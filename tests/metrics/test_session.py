@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -22,10 +24,11 @@ IN_VIEW = ["phone;tv"] * 10 + ["tv"] * 4 + ["", ""] + [None] + ["tv", "tv"]
 VALID = "1" * 14 + "0" + "1" + "0" + "11"   # 14 and 16 invalid
 
 
-def _inputs(n, cohort="evening"):
+def _inputs(n, cohort="evening", recording=Path("p01__s1.parquet")):
+    # the metrics never open the recording; its presence only matters for censoring
     return SessionInputs(key=SessionKey("p01", "s1"), cohort=cohort, duration_s=n,
                          codes=pd.DataFrame(), coder="coder_a",
-                         sync_pairs=np.empty((0, 2)), recording_path=None,
+                         sync_pairs=np.empty((0, 2)), recording_path=recording,
                          platform_groups=GROUPS)
 
 
@@ -128,3 +131,15 @@ def test_inputs_are_not_changed_and_errors_are_typed():
         session_metrics(tl.drop(columns="arousal"), _inputs(len(SPEC)), Config())
     with pytest.raises(StageError, match="rows"):
         session_metrics(tl, _inputs(len(SPEC) + 5), Config())
+
+
+def test_session_without_recording_censors_only_at_edges_and_gaps():
+    # With no recording every second is "invalid", but that is absence of a sensor,
+    # not an artifact: bouts are censored only at the session edges and uncoded gaps.
+    # Bouts: tv 0-1 (edge), phone 2-3, tv 4-5, phone 8-9, tv 10-13, tv 17-18 (uncoded
+    # second 16 before it, and the session end). Invalid-signal censoring would have
+    # censored tv 10-13 (second 14 invalid); here it is observed.
+    tl = build_timeline(SPEC, in_view=IN_VIEW, valid="0" * len(SPEC))
+    m = session_metrics(tl, _inputs(len(SPEC), recording=None), Config())
+    censored = m.bouts.set_index("start_s")["censored"].to_dict()
+    assert censored == {0: True, 2: False, 4: False, 8: False, 10: False, 17: True}

@@ -58,6 +58,7 @@ class Prepared:
     sampling_rate_hz: float
     channels: list[str]
     notes: list[str]
+    coverage: dict[str, float]
     recording_nbytes: int = 0
 
 
@@ -84,6 +85,7 @@ def prepare_session(task: PrepareTask) -> Prepared:
         notes.extend(signals.notes)
     aligned = build_timeline(inputs, signals, cfg.signals)
     return Prepared(
+        coverage=_coverage(aligned.timeline),
         key=inputs.key,
         timeline=aligned.timeline,
         scrs=aligned.scrs,
@@ -258,14 +260,25 @@ def _moments(timeline: pd.DataFrame, cfg: Config) -> tuple[int, float, float]:
     return len(vals), mean, float(((vals - mean) ** 2).sum())
 
 
-def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
-            cfg: Config) -> dict:
-    tl = prep.timeline
+def _coverage(tl: pd.DataFrame) -> dict[str, float]:
+    """Coverage facts of one timeline for QC: coded share, uncoded stretches, usable share."""
     coded = tl["coded"].to_numpy(dtype=bool)
     # number of uncoded stretches inside the session
     gaps = int(np.count_nonzero(np.diff(np.concatenate([[0], (~coded).astype(np.int8)])) == 1))
     valid_coded = float((tl["signal_valid"].to_numpy(dtype=bool) & coded).sum())
-    usable_share = valid_coded / coded.sum() if coded.sum() else 0.0
+    return {
+        "coded_seconds": int(coded.sum()),
+        "coverage": float(coded.mean()) if len(coded) else 0.0,
+        "uncoded_seconds": int((~coded).sum()),
+        "coverage_gaps": gaps,
+        "usable_share": valid_coded / coded.sum() if coded.sum() else 0.0,
+    }
+
+
+def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
+            cfg: Config) -> dict:
+    cov = prep.coverage
+    usable_share = cov["usable_share"]
     flags = list(prep.flags) + (metrics.flags if metrics else [])
     usable = bool(inp.recording_path is not None and usable_share >= cfg.qc.min_usable_share)
     reason = ""
@@ -281,10 +294,10 @@ def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
         "cohort": inp.cohort,
         "coder": inp.coder,
         "duration_s": inp.duration_s,
-        "coded_seconds": int(coded.sum()),
-        "coverage": float(coded.mean()) if len(coded) else 0.0,
-        "uncoded_seconds": int((~coded).sum()),
-        "coverage_gaps": gaps,
+        "coded_seconds": cov["coded_seconds"],
+        "coverage": cov["coverage"],
+        "uncoded_seconds": cov["uncoded_seconds"],
+        "coverage_gaps": cov["coverage_gaps"],
         "recording": inp.recording_path.name if inp.recording_path else "",
         "sampling_rate_hz": prep.sampling_rate_hz,
         "channels": ";".join(prep.channels),

@@ -1,0 +1,139 @@
+"""`run` end to end on a tiny invented study: contract outputs, cache, failures, safety."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+sys.path.insert(0, str(Path(__file__).parent / "ingest"))
+from ingest_builders import tree_hashes, write_study  # noqa: E402
+
+from pipeline.cli import app  # noqa: E402
+from pipeline.errors import EXIT_PARTIAL, EXIT_STAGE  # noqa: E402
+
+# CONTRACT §3: the columns each table has at least
+CONTRACT_COLUMNS = {
+    "metrics/sessions.csv": ["participant_id", "session_id", "cohort", "coded_hours",
+                             "media_hours", "multi_hours", "switches", "switches_per_hour",
+                             "eda_valid_fraction", "compression_ratio"],
+    "metrics/states.csv": ["participant_id", "session_id", "cohort", "state", "seconds",
+                           "arousal_mean", "arousal_p05", "arousal_p95", "arousal_range",
+                           "scr_per_min"],
+    "metrics/platforms.csv": ["participant_id", "session_id", "cohort", "platform", "group",
+                              "in_view_seconds", "attended_seconds", "bouts",
+                              "dwell_median_s"],
+    "models/comparisons.csv": ["outcome", "model", "term", "estimate", "std_error", "ci_low",
+                               "ci_high", "p_value", "p_fdr", "n_participants", "n_obs",
+                               "scale"],
+    "qc/sessions.csv": ["participant_id", "session_id", "coverage", "sync_residual_s",
+                        "flags"],
+}
+
+runner = CliRunner()
+
+
+def _run(study, out, *extra):
+    return runner.invoke(app, ["run", str(study), "--out", str(out), "--workers", "1",
+                               "--quiet", "--no-report", *extra])
+
+
+@pytest.fixture
+def study(tmp_path):
+    return write_study(tmp_path / "study")
+
+
+def test_run_writes_the_contract_tables(study, tmp_path):
+    before = tree_hashes(study)
+    res = _run(study, tmp_path / "out")
+    assert res.exit_code == 0, res.output
+    out = tmp_path / "out"
+    for rel, cols in CONTRACT_COLUMNS.items():
+        df = pd.read_csv(out / rel)
+        missing = [c for c in cols if c not in df.columns]
+        assert not missing, f"{rel} lacks {missing}"
+    sessions = pd.read_csv(out / "metrics/sessions.csv")
+    assert len(sessions) == 2  # one row per participant-session
+    assert len(pd.read_csv(out / "metrics/states.csv")) == 6  # 3 coarse states each
+    timeline = pd.read_parquet(out / "timeline" / "p01__s1.parquet")
+    assert len(timeline) == 20 and {"state", "arousal", "signal_valid"} <= set(timeline)
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert manifest["sessions_ok"] == manifest["sessions_total"] == 2
+    assert set(manifest["inputs"]) >= {"roster.csv", "sessions.csv", "media_log.csv"}
+    assert all(len(h["sha256"]) == 64 for h in manifest["outputs"].values())
+    assert "metrics/sessions.csv" in manifest["outputs"]
+    assert manifest["config"]["switching"]["max_gap_s"] == 3
+    assert "ran 2 of 2 sessions" in res.output
+    assert tree_hashes(study) == before  # nothing the user gave is modified
+
+
+def test_rerun_uses_the_cache_and_fresh_ignores_it(study, tmp_path):
+    out = tmp_path / "out"
+    assert _run(study, out).exit_code == 0
+    first = pd.read_csv(out / "metrics/sessions.csv")
+    res = _run(study, out)
+    assert "(2 from cache)" in res.output
+    pd.testing.assert_frame_equal(first, pd.read_csv(out / "metrics/sessions.csv"))
+    res = _run(study, out, "--fresh")
+    assert "from cache" not in res.output
+
+
+def test_changed_recording_invalidates_only_its_session(study, tmp_path):
+    out = tmp_path / "out"
+    assert _run(study, out).exit_code == 0
+    rec = study / "signals" / "p02__s1.parquet"
+    df = pd.read_parquet(rec)
+    df["eda_us"] = df["eda_us"] + 1.0
+    df.to_parquet(rec, index=False)
+    res = _run(study, out)
+    assert "(1 from cache)" in res.output
+
+
+def _break_one_session(study):
+    # a recording whose time axis is not numeric: read_recording refuses it
+    pd.DataFrame({"time_s": ["a", "b"], "eda_us": [1.0, 2.0]}).to_parquet(
+        study / "signals" / "p02__s1.parquet", index=False)
+
+
+def test_failing_session_stops_the_run_and_is_named(study, tmp_path):
+    _break_one_session(study)
+    res = _run(study, tmp_path / "out")
+    assert res.exit_code == EXIT_STAGE
+    assert "p02/s1" in res.output and "--keep-going" in res.output
+
+
+def test_keep_going_reports_partial_success(study, tmp_path):
+    _break_one_session(study)
+    res = _run(study, tmp_path / "out", "--keep-going")
+    assert res.exit_code == EXIT_PARTIAL, res.output
+    assert "ran 1 of 2 sessions" in res.output
+    assert "failed: p02/s1" in res.output
+    manifest = json.loads((tmp_path / "out" / "manifest.json").read_text())
+    assert manifest["failures"][0]["session_id"] == "s1"
+    assert len(pd.read_csv(tmp_path / "out" / "metrics/sessions.csv")) == 1
+
+
+def test_parallel_run_matches_serial(study, tmp_path):
+    assert _run(study, tmp_path / "a").exit_code == 0
+    res = runner.invoke(app, ["run", str(study), "--out", str(tmp_path / "b"), "--workers",
+                              "2", "--quiet", "--no-report"])
+    assert res.exit_code == 0, res.output
+    for rel in ("metrics/sessions.csv", "metrics/states.csv", "qc/sessions.csv"):
+        pd.testing.assert_frame_equal(pd.read_csv(tmp_path / "a" / rel),
+                                      pd.read_csv(tmp_path / "b" / rel))
+
+
+def test_run_help():
+    res = runner.invoke(app, ["run", "--help"])
+    assert res.exit_code == 0 and "--keep-going" in res.output and "--workers" in res.output
+
+
+def test_root_help_lists_commands():
+    res = runner.invoke(app, ["--help"])
+    assert res.exit_code == 0
+    for cmd in ("run", "check"):
+        assert cmd in res.output

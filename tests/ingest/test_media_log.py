@@ -1,0 +1,270 @@
+"""Media log rules (CONTRACT §1): both forms, several files, coders, vocabulary."""
+
+from __future__ import annotations
+
+import pytest
+
+from ingest_builders import assert_names, load, refusal, second_log, write_study
+
+HEADER = "participant_id,session_id,second,in_view,attended\n"
+INTERVAL_HEADER = "participant_id,session_id,platform,start_s,end_s,role\n"
+NO_VOCAB = '[study]\ntimezone = "Europe/Berlin"\n'
+
+
+def _log(*rows: str, header: str = HEADER) -> str:
+    return header + "\n".join(rows) + "\n"
+
+
+# ----------------------------------------------------------------- second-by-second form
+def test_second_form_is_read_and_in_view_normalised(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv;phone,tv", "p01,s1,1, tv ; tv ;,",
+                                         "p01,s1,2,,", "p02,s1,5,phone;;tv,phone"))
+    log = load(tmp_path).media_log
+    assert log.columns.tolist() == ["participant_id", "session_id", "second", "in_view",
+                                    "attended", "coder"]
+    assert log["in_view"].tolist() == ["phone;tv", "tv", "", "phone;tv"]
+    assert log["attended"].tolist() == ["tv", "", "", "phone"]
+    assert log["second"].tolist() == [0, 1, 2, 5] and str(log["second"].dtype) == "int64"
+    assert log["coder"].tolist() == ["", "", "", ""]
+
+
+def test_seconds_missing_from_the_log_stay_uncoded(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s1,7,tv,tv"))
+    study = load(tmp_path)
+    assert study.media_log["second"].tolist() == [0, 7]
+    assert any("no coded second" in w and "p02/s1" in w for w in study.warnings)
+
+
+def test_row_of_unknown_participant_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p07,s1,1,tv,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "participant_id", "p07",
+                 says="has no session in sessions.csv")
+
+
+def test_row_of_unknown_session_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s2,1,tv,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "session_id", "s2",
+                 says="is not a session of participant 'p01'")
+
+
+@pytest.mark.parametrize("bad", ["-1", "1.5", "abc", "", "1e3", "inf", "nan",
+                                 "99999999999999999999999"])
+def test_second_not_a_non_negative_integer_is_refused(tmp_path, bad):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", f"p01,s1,{bad},tv,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "second", bad)
+
+
+def test_whole_number_written_with_decimals_is_accepted(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,3.0,tv,tv"))
+    assert load(tmp_path).media_log["second"].tolist() == [3]
+
+
+def test_second_at_or_past_the_session_end_is_refused(tmp_path):
+    # sessions last 20 s (builders), so seconds run 0..19
+    write_study(tmp_path, media_log=_log("p01,s1,19,tv,tv", "p01,s1,20,tv,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "second", "20",
+                 says="seconds run 0 to 19")
+
+
+def test_duplicate_second_and_coder_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s1,1,tv,", "p01,s1,0,tv,"))
+    assert_names(refusal(tmp_path), "media_log.csv", 4, "second", "0",
+                 says="already coded on line 2")
+
+
+def test_same_second_by_two_coders_is_fine(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv,a", "p01,s1,0,tv,,b",
+                                         header=HEADER.strip() + ",coder\n"))
+    study = load(tmp_path)
+    assert study.media_log["coder"].tolist() == ["a", "b"]
+    from pipeline.types import SessionKey
+    assert study.coders(SessionKey("p01", "s1")) == ["a", "b"]
+
+
+def test_attended_not_in_view_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s1,1,tv,phone"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "attended", "phone",
+                 says="not one of the platforms in view (tv)")
+
+
+def test_attended_with_nothing_in_view_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 2, "attended", "tv",
+                 says="in view (nothing)")
+
+
+def test_attended_naming_two_platforms_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,phone;tv,phone;tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 2, "attended", "phone;tv",
+                 says="more than one platform")
+
+
+def test_code_outside_the_declared_vocabulary_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s1,1,tv;phonee,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "in_view", "tv;phonee",
+                 says="did you mean 'phone'?")
+
+
+def test_code_with_plus_is_refused(tmp_path):
+    write_study(tmp_path, toml=NO_VOCAB, media_log=_log("p01,s1,0,tv+phone,"))
+    assert_names(refusal(tmp_path), "media_log.csv", 2, "in_view", "tv+phone",
+                 says="reserved")
+
+
+def test_without_vocabulary_every_code_seen_is_accepted_and_listed(tmp_path):
+    write_study(tmp_path, toml=NO_VOCAB, media_log=_log("p01,s1,0,radio;tv,radio",
+                                                        "p02,s1,0,zine,"))
+    study = load(tmp_path)
+    assert study.vocabulary_declared is False
+    assert study.platform_groups == {"radio": "ungrouped", "tv": "ungrouped",
+                                     "zine": "ungrouped"}
+    assert any("no [platforms] vocabulary" in w and "radio, tv, zine" in w
+               for w in study.warnings)
+
+
+def test_declared_vocabulary_gives_the_groups(tmp_path):
+    write_study(tmp_path)
+    study = load(tmp_path)
+    assert study.vocabulary_declared is True
+    assert study.platform_groups == {"tv": "screen", "phone": "screen", "magazine": "print"}
+
+
+def test_all_problems_of_one_log_file_come_together(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,x,tv,tv", "p01,s1,1,tv,phone",
+                                         "p01,s9,2,tv,tv", "p01,s1,3,zz,"))
+    err = refusal(tmp_path)
+    assert sorted((p.line, p.column) for p in err.problems) == [
+        (2, "second"), (3, "attended"), (4, "session_id"), (5, "in_view")]
+
+
+# --------------------------------------------------------------------------- files
+def test_several_files_take_the_file_stem_as_coder(tmp_path):
+    write_study(tmp_path, media_log_files={"ana.csv": second_log(),
+                                           "ben.csv": second_log()})
+    study = load(tmp_path)
+    assert sorted(study.media_log["coder"].unique()) == ["ana", "ben"]
+    assert len(study.media_log) == 80
+    assert [p.name for p in study.input_files if "media_log" in str(p)] == ["ana.csv", "ben.csv"]
+
+
+def test_coder_column_wins_over_the_file_stem(tmp_path):
+    write_study(tmp_path, media_log_files={"part1.csv": second_log(coder="ana"),
+                                           "part2.csv": second_log(coder="ben")})
+    assert sorted(load(tmp_path).media_log["coder"].unique()) == ["ana", "ben"]
+
+
+def test_single_file_in_folder_without_coder_gives_empty_coder(tmp_path):
+    write_study(tmp_path, media_log_files={"log.csv": second_log()})
+    assert load(tmp_path).media_log["coder"].unique().tolist() == [""]
+
+
+def test_same_coder_in_two_files_is_a_duplicate_naming_both_files(tmp_path):
+    write_study(tmp_path, media_log_files={"a.csv": second_log(coder="ana"),
+                                           "b.csv": second_log(coder="ana")})
+    err = refusal(tmp_path)
+    assert_names(err, "media_log/b.csv", 2, "second", "0",
+                 says="already coded on line 2 of media_log/a.csv")
+
+
+def test_problems_of_several_files_are_reported_together(tmp_path):
+    write_study(tmp_path, media_log_files={"a.csv": _log("p01,s1,-4,tv,tv"),
+                                           "b.csv": _log("p01,s1,0,tv,phone")})
+    err = refusal(tmp_path)
+    assert {p.file for p in err.problems} == {"media_log/a.csv", "media_log/b.csv"}
+
+
+def test_both_media_log_csv_and_folder_is_refused(tmp_path):
+    write_study(tmp_path, media_log_files={"a.csv": second_log()})
+    (tmp_path / "media_log.csv").write_text(second_log())
+    assert "both exist" in refusal(tmp_path).render()
+
+
+def test_no_media_log_is_refused(tmp_path):
+    write_study(tmp_path, media_log=None)
+    assert_names(refusal(tmp_path), "media_log.csv", None, None, None, says="is missing")
+
+
+def test_file_in_neither_form_is_refused(tmp_path):
+    write_study(tmp_path, media_log="participant_id,session_id,time,what\np01,s1,0,tv\n")
+    err = refusal(tmp_path)
+    assert "neither media log form" in err.render()
+    assert_names(err, "media_log.csv", 1, "second", None, says="has no column 'second'")
+
+
+def test_missing_attended_column_is_refused(tmp_path):
+    write_study(tmp_path, media_log="participant_id,session_id,second,in_view\np01,s1,0,tv\n")
+    assert_names(refusal(tmp_path), "media_log.csv", 1, "attended", None,
+                 says="has no column 'attended'")
+
+
+# --------------------------------------------------------------------------- intervals
+def test_interval_form_becomes_seconds_over_the_coded_span(tmp_path):
+    log = _log("p01,s1,tv,2,8,in_view", "p01,s1,phone,5,7,in_view", "p01,s1,tv,2,5,attended",
+               "p01,s1,phone,5,6,attended", "p01,s1,tv,10,12,in_view",
+               header=INTERVAL_HEADER)
+    write_study(tmp_path, media_log=log)
+    m = load(tmp_path).media_log
+    # coded span [2, 12): 8 and 9 are coded with nothing in view; 0, 1 and 12.. uncoded
+    assert m["second"].tolist() == list(range(2, 12))
+    assert m["in_view"].tolist() == ["tv", "tv", "tv", "phone;tv", "phone;tv", "tv", "", "",
+                                     "tv", "tv"]
+    assert m["attended"].tolist() == ["tv", "tv", "tv", "phone", "", "", "", "", "", ""]
+    assert set(m["participant_id"]) == {"p01"} and set(m["coder"]) == {""}
+
+
+def test_interval_form_equals_the_same_log_second_by_second(tmp_path):
+    seconds = _log(*[f"p01,s1,{s},{'tv' if s < 4 else 'phone;tv'},{'tv' if s < 6 else 'phone'}"
+                     for s in range(10)])
+    intervals = _log("p01,s1,tv,0,10,in_view", "p01,s1,phone,4,10,in_view",
+                     "p01,s1,tv,0,6,attended", "p01,s1,phone,6,10,attended",
+                     header=INTERVAL_HEADER)
+    a = load(write_study(tmp_path / "a", media_log=seconds)).media_log
+    b = load(write_study(tmp_path / "b", media_log=intervals)).media_log
+    assert a.equals(b)
+
+
+def test_interval_and_second_files_mix_with_stem_coders(tmp_path):
+    write_study(tmp_path, media_log_files={
+        "ana.csv": _log("p01,s1,tv,0,3,in_view", header=INTERVAL_HEADER),
+        "ben.csv": _log("p01,s1,0,tv,", "p01,s1,1,tv,tv")})
+    m = load(tmp_path).media_log
+    assert m.groupby("coder").size().to_dict() == {"ana": 3, "ben": 2}
+
+
+@pytest.mark.parametrize("row,column,value,says", [
+    ("p01,s1,tv,5,5,in_view", "end_s", "5", "not after start_s"),
+    ("p01,s1,tv,6,2,in_view", "end_s", "2", "not after start_s"),
+    ("p01,s1,tv,-1,2,in_view", "start_s", "-1", "whole number"),
+    ("p01,s1,tv,0,2.5,in_view", "end_s", "2.5", "whole number"),
+    ("p01,s1,tv,10,21,in_view", "end_s", "21", "end_s is at most 20"),
+    ("p01,s1,tv,0,2,looked", "role", "looked", "role is in_view or attended"),
+    ("p01,s1,,0,2,in_view", "platform", "", "names one platform"),
+    ("p01,s1,radio,0,2,in_view", "platform", "radio", "vocabulary"),
+    ("p01,s1,tv;phone,0,2,in_view", "platform", "tv;phone", "reserved"),
+    ("p03,s1,tv,0,2,in_view", "participant_id", "p03", "no session"),
+])
+def test_interval_rule_refusals(tmp_path, row, column, value, says):
+    write_study(tmp_path, media_log=_log("p01,s1,tv,0,20,in_view", row, header=INTERVAL_HEADER))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, column, value, says=says)
+
+
+def test_interval_attended_outside_in_view_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log("p01,s1,tv,0,5,in_view", "p01,s1,tv,3,8,attended",
+                                         header=INTERVAL_HEADER))
+    assert_names(refusal(tmp_path), "media_log.csv", 3, "platform", "tv",
+                 says="attended from second 5 but not in view")
+
+
+def test_interval_two_platforms_attended_at_once_is_refused(tmp_path):
+    write_study(tmp_path, media_log=_log(
+        "p01,s1,tv,0,10,in_view", "p01,s1,phone,0,10,in_view", "p01,s1,tv,0,5,attended",
+        "p01,s1,phone,4,8,attended", header=INTERVAL_HEADER))
+    assert_names(refusal(tmp_path), "media_log.csv", 4, "platform", "tv",
+                 says="at second 4 while 'phone' (line 5) is attended too")
+
+
+def test_file_mixing_both_forms_is_refused(tmp_path):
+    write_study(tmp_path, media_log="participant_id,session_id,second,in_view,attended,"
+                "start_s\np01,s1,0,tv,tv,0\n")
+    assert "mixes the columns of both" in refusal(tmp_path).render()
+

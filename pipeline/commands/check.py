@@ -106,8 +106,9 @@ def _recording_warnings(study: Study, records: dict[SessionKey, Recording]) -> l
 @app.command()
 @guarded
 def check(
-    study: Path = typer.Argument(..., help="Study folder, or a study .toml whose [study] "
-                                 "data_dir names the folder."),
+    study: Path = typer.Argument(..., metavar="STUDY",
+                                 help="Study folder, or a study .toml whose data_dir setting "
+                                 "names the folder."),
 ) -> None:
     """Check a study folder against the data contract and summarise it (writes nothing).
 

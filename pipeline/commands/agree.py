@@ -28,7 +28,8 @@ def summary_lines(study_row: dict, n_sessions: int, n_alpha: int) -> list[str]:
     sband = f" ({r['kappa_state_band']})" if r["kappa_state_band"] else ""
     lines = [
         f"agreement: {r['sessions']} of {n_sessions} sessions coded by two or more coders "
-        f"({r['coder_pairs']} coder pairs, {r['seconds_compared']} seconds compared; "
+        f"({r['coder_pairs']} coder pair{'' if r['coder_pairs'] == 1 else 's'}, "
+        f"{r['seconds_compared']} seconds compared; "
         f"coders {r['coders'].replace(';', ', ')})",
         f"  attended platform: {_pct(r['agreement_attended'])} agreement, "
         f"Cohen's kappa {_num(r['kappa_attended'])}{band}; per session-pair kappa "
@@ -37,8 +38,9 @@ def summary_lines(study_row: dict, n_sessions: int, n_alpha: int) -> list[str]:
         f"  state (none/single/multi): {_pct(r['agreement_state'])} agreement, "
         f"Cohen's kappa {_num(r['kappa_state'])}{sband}",
         f"  switches within {r['switch_tolerance_s']} s ({r['switch_matching']} matching): "
-        f"{r['switches_matched']} matched of {r['switches_a']} (coder A) and "
-        f"{r['switches_b']} (coder B); precision {_num(r['switch_precision'])}, "
+        f"{r['switches_matched']} pairs from {r['switches_a']} switches of coder A (first "
+        f"in sorted order) and {r['switches_b']} of coder B; "
+        f"precision {_num(r['switch_precision'])}, "
         f"recall {_num(r['switch_recall'])}, F1 {_num(r['switch_f1'])}",
     ]
     if n_alpha:

@@ -116,3 +116,38 @@ def test_agree_refuses_an_unknown_matching_rule(tmp_path):
     result = CliRunner().invoke(app, ["agree", str(study), "--out", str(tmp_path / "out")])
     assert result.exit_code == EXIT_INPUT
     assert "greedy" in result.output and "optimal" in result.output
+
+
+def test_agree_reads_one_log_file_per_coder_and_three_coders_give_alpha(tmp_path):
+    # CONTRACT §1: media_log/*.csv, a file without a coder column is coded by its stem
+    study = make_study(tmp_path / "study")
+    log = pd.read_csv(study / "media_log.csv", keep_default_na=False)
+    (study / "media_log.csv").unlink()
+    (study / "media_log").mkdir()
+    for coder, rows in log.groupby("coder"):
+        rows.drop(columns="coder").to_csv(study / "media_log" / f"{coder}.csv", index=False)
+    cy = log[(log.coder == "ann") & (log.participant_id == "p01")].drop(columns="coder")
+    cy.to_csv(study / "media_log" / "cy.csv", index=False)
+    out = tmp_path / "out"
+    result = CliRunner().invoke(app, ["agree", str(study), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    sessions = pd.read_csv(out / "agreement" / "sessions.csv")
+    assert sessions[["coder_a", "coder_b"]].values.tolist() == [
+        ["ann", "bea"], ["ann", "cy"], ["bea", "cy"]]
+    # cy copies ann: perfect agreement on every second both coded
+    assert sessions.loc[1, "kappa_attended"] == pytest.approx(1.0)
+    alpha = pd.read_csv(out / "agreement" / "alpha.csv")
+    assert alpha[["participant_id", "n_coders", "seconds_compared"]].values.tolist() == [
+        ["p01", 3, 20]]
+    assert "Krippendorff's alpha" in result.output
+
+
+def test_a_platform_named_none_is_refused(tmp_path):
+    study = make_study(tmp_path / "study")
+    log = pd.read_csv(study / "media_log.csv", keep_default_na=False)
+    log["in_view"] = log["in_view"].str.replace("phone", "none")
+    log["attended"] = log["attended"].str.replace("phone", "none")
+    log.to_csv(study / "media_log.csv", index=False)
+    result = CliRunner().invoke(app, ["agree", str(study), "--out", str(tmp_path / "out")])
+    assert result.exit_code == EXIT_INPUT
+    assert "'none'" in result.output and "rename" in result.output

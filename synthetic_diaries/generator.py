@@ -397,7 +397,7 @@ def expected_switch_rate(opts: SynthOptions, cohort: CohortBehaviour) -> float:
     platforms = sorted(opts.platform_groups)
     position = [c.name for c in opts.cohorts].index(cohort.name)
     rng = _rng(opts, _EXPECTED, position)
-    session_s = int(round(opts.session_hours * 3600))
+    session_s = max(int(round(opts.session_hours * 3600)), 4 * 3600)  # few, long chunks
     n = max(1, int(np.ceil(opts.truth_simulation_hours * 3600 / session_s)))
     switches = multi = 0
     empty = np.array([], dtype=np.int64)

@@ -95,12 +95,64 @@ class DwellSettings(StrictModel):
 
 
 # ------------------------------------------------------------------------- signals
+#: Artifact rules a study may enable (the functions live in pipeline/signals/artifacts.py).
+EDA_RULES = ("out_of_range", "flat_line", "jump", "clipping", "motion")
+
+
 class EdaSettings(StrictModel):
-    max_us: float = Field(
-        100.0, gt=0, description="Skin conductance above this (µS) cannot be real: invalid."
-    )
     min_us: float = Field(
-        0.0, ge=0, description="Skin conductance at or below this (µS) is invalid."
+        0.05, ge=0, description="Skin conductance below this (µS) is invalid (out_of_range "
+        "rule); non-positive conductance always is."
+    )
+    max_us: float = Field(
+        60.0, gt=0, description="Skin conductance above this (µS) is invalid (out_of_range rule)."
+    )
+    rules: list[str] = Field(
+        default_factory=lambda: list(EDA_RULES),
+        description="Artifact rules that mark samples invalid, any of: "
+        + ", ".join(EDA_RULES) + ".",
+    )
+    max_slope_us_per_s: float = Field(
+        10.0, gt=0, description="A change between successive samples faster than this "
+        "(µS/s, either sign) marks both samples invalid (jump rule)."
+    )
+    flat_window_s: float = Field(
+        10.0, gt=0, description="A stretch at least this long (s) whose range stays within "
+        "flat_tolerance_us is a flat line (sensor off): invalid."
+    )
+    flat_tolerance_us: float = Field(
+        0.001, ge=0, description="Largest range (max - min, µS) of a flat-line stretch."
+    )
+    ceiling_us: float | None = Field(
+        None, gt=0, description="The sensor's upper range end (µS); readings at it for "
+        "clip_min_s or longer are clipped. Default: the recording's own maximum."
+    )
+    clip_min_s: float = Field(
+        2.0, gt=0, description="Readings held at the ceiling at least this long (s) are "
+        "clipping: invalid."
+    )
+    motion_max_g: float = Field(
+        0.3, gt=0, description="Accelerometer magnitude deviation from 1 g, averaged over "
+        "motion_window_s, above which samples are invalid (motion rule; needs acc_x/y/z)."
+    )
+    motion_window_s: float = Field(
+        1.0, gt=0, description="Averaging window of the motion rule (s)."
+    )
+    pad_s: float = Field(
+        5.0, ge=0, description="Invalid stretches longer than max_interp_s are widened by "
+        "this much (s) on each side: transitional data around an artifact."
+    )
+    lowpass_hz: float = Field(
+        3.0, gt=0, description="Cut-off (Hz) of the zero-phase Butterworth low-pass that "
+        "cleans skin conductance (lowered to 0.8 x Nyquist for slow recordings)."
+    )
+    lowpass_order: int = Field(
+        4, ge=1, le=8, description="Order of that Butterworth low-pass (applied forwards and "
+        "backwards, so the effective order doubles)."
+    )
+    analysis_hz: float = Field(
+        16.0, gt=0, description="Rate (Hz) at which decomposition and SCR scoring run, after "
+        "the low-pass; recordings sampled faster are decimated for these steps only."
     )
     min_valid_share: float = Field(
         0.5,
@@ -109,13 +161,106 @@ class EdaSettings(StrictModel):
         description="A video second is valid when at least this share of its samples is valid.",
     )
 
+    @model_validator(mode="after")
+    def _known_rules(self) -> "EdaSettings":
+        for rule in self.rules:
+            if rule not in EDA_RULES:
+                close = difflib.get_close_matches(rule, EDA_RULES, n=1)
+                hint = f"; did you mean {close[0]!r}?" if close else ""
+                raise ValueError(f"unknown artifact rule {rule!r}{hint} (choose from "
+                                 f"{', '.join(EDA_RULES)})")
+        if self.min_us >= self.max_us:
+            raise ValueError("min_us must be below max_us")
+        return self
+
+
+class ConvexSettings(StrictModel):
+    tau_rise_s: float = Field(0.7, gt=0, description="Rise time constant tau1 of the "
+                              "Bateman impulse response (s).")
+    tau_decay_s: float = Field(2.0, gt=0, description="Decay time constant tau0 of the "
+                               "Bateman impulse response (s).")
+    knot_s: float = Field(10.0, gt=0, description="Knot spacing of the tonic cubic spline (s).")
+    alpha: float = Field(8e-4, gt=0, description="Weight of the sparsity (L1) penalty on the "
+                         "phasic driver (signal standardised first).")
+    gamma: float = Field(1e-2, ge=0, description="Weight of the ridge penalty on the tonic "
+                         "spline coefficients.")
+    window_s: float = Field(600.0, gt=0, description="Each window solved on its own (s), so "
+                            "memory stays bounded on long recordings.")
+    overlap_s: float = Field(60.0, ge=0, description="Context added on each side of a window "
+                             "and discarded after solving (s).")
+    max_iterations: int = Field(3000, ge=10, description="Iteration limit of the bounded "
+                                "quasi-Newton solver per window.")
+
+
+class DecompositionSettings(StrictModel):
+    method: str = Field(
+        "highpass",
+        description="Tonic/phasic decomposition: 'highpass' (fast, default for long "
+        "recordings), 'median' (fast) or 'convex' (model-based, windowed).",
+    )
+    highpass_hz: float = Field(
+        0.05, gt=0, description="Cut-off (Hz) of the zero-phase high-pass giving the phasic "
+        "component (method 'highpass')."
+    )
+    highpass_order: int = Field(
+        2, ge=1, le=8, description="Order of that Butterworth high-pass."
+    )
+    median_window_s: float = Field(
+        8.0, gt=0, description="Window (s) of the running median giving the tonic component "
+        "(method 'median')."
+    )
+    convex: ConvexSettings = Field(
+        default_factory=ConvexSettings, description="Settings of method 'convex'."
+    )
+
+
+class ScrSettings(StrictModel):
+    method: str = Field(
+        "trough_to_peak", description="How SCRs are found and measured: 'trough_to_peak'."
+    )
+    min_amplitude_us: float = Field(
+        0.01, gt=0, description="Smallest SCR amplitude counted (µS); also the smallest dip "
+        "that separates two responses."
+    )
+    max_half_recovery_s: float = Field(
+        20.0, gt=0, description="Half-recovery is searched this long after the peak (s); "
+        "NaN when not reached before it, the next SCR or invalid signal."
+    )
+
+
+class HrSettings(StrictModel):
+    min_bpm: float = Field(30.0, gt=0, description="Heart rate below this (beats/min) is invalid.")
+    max_bpm: float = Field(200.0, gt=0, description="Heart rate above this (beats/min) is invalid.")
+    artifact_method: str = Field(
+        "malik", description="Successive-difference rule for beats: 'malik' (relative change) "
+        "or 'berntson' (criterion from the series' own quartiles)."
+    )
+    malik_max_change: float = Field(
+        0.2, gt=0, lt=1, description="Largest relative change between successive intervals "
+        "under rule 'malik'."
+    )
+
 
 class SignalSettings(StrictModel):
     edf_labels: dict[str, str] = Field(
         default_factory=dict,
-        description="EDF signal label -> contract column name (e.g. 'GSR' = 'eda_us').",
+        description="EDF signal label (or BIDS physio column) -> contract column name "
+        "(e.g. 'GSR' = 'eda_us').",
+    )
+    resample_hz: float | None = Field(
+        None, gt=0, description="Rate of the uniform grid each recording is resampled to "
+        "(Hz); default: the recording's own median rate."
+    )
+    max_interp_s: float = Field(
+        2.0, ge=0, description="Longest stretch (s) bridged by linear interpolation, both for "
+        "gaps between samples and for short artifacts; longer ones stay invalid."
     )
     eda: EdaSettings = Field(default_factory=EdaSettings, description="Skin conductance rules.")
+    decomposition: DecompositionSettings = Field(
+        default_factory=DecompositionSettings, description="Tonic/phasic decomposition."
+    )
+    scr: ScrSettings = Field(default_factory=ScrSettings, description="SCR scoring.")
+    hr: HrSettings = Field(default_factory=HrSettings, description="Heart rate rules.")
 
 
 class ArousalSettings(StrictModel):

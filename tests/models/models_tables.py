@@ -2,7 +2,6 @@
 
 import numpy as np
 import pandas as pd
-import pytest
 
 
 def make_tables(seed=0, n_per_cohort=8, sessions=3, rate_ratio=1.5, base_rate=60.0,
@@ -56,6 +55,3 @@ def make_tables(seed=0, n_per_cohort=8, sessions=3, rate_ratio=1.5, base_rate=60
     return pd.DataFrame(rows), pd.DataFrame(st), pd.DataFrame(gr), pd.DataFrame(ros)
 
 
-@pytest.fixture
-def tables():
-    return make_tables()

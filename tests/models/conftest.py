@@ -1,0 +1,7 @@
+import pytest
+from models_tables import make_tables
+
+
+@pytest.fixture
+def tables():
+    return make_tables()

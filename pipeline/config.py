@@ -42,6 +42,12 @@ class StudySettings(StrictModel):
         "UTC",
         description="IANA time zone in which naive session start/end times are read.",
     )
+    max_session_hours: float = Field(
+        168.0,
+        gt=0,
+        description="Sessions longer than this many hours are refused as a likely date typo "
+        "(sessions over 24 hours are accepted with a warning).",
+    )
 
     @model_validator(mode="after")
     def _known_zone(self) -> "StudySettings":

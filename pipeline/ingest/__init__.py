@@ -91,8 +91,8 @@ def load_study(folder: Path, cfg: Config) -> Study:
         inputs.append(sessions_path)
         table = _read(sessions_path, "sessions.csv", sessions_file.REQUIRED, problems)
         if table is not None:
-            sessions = sessions_file.validate_sessions(table, known_participants,
-                                                       cfg.study.timezone, problems, warnings)
+            sessions = sessions_file.validate_sessions(table, known_participants, cfg.study,
+                                                       problems, warnings)
     problems.raise_if_any()
     if roster is None or sessions is None:  # unreachable: a missing table is a problem above
         raise InputError("roster.csv", "could not be read")

@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from pipeline.config import StudySettings
 from pipeline.errors import ProblemCollector
 from pipeline.ingest.cells import duplicated_rows, report
 from pipeline.ingest.csvfile import CsvTable
@@ -79,7 +80,7 @@ def _report_times(table: CsvTable, column: str, reason: np.ndarray, timezone: st
            hint="give the time with its UTC offset (+02:00 before the change, +01:00 after)")
 
 
-def validate_sessions(table: CsvTable, known_participants: set[str], timezone: str,
+def validate_sessions(table: CsvTable, known_participants: set[str], cfg: StudySettings,
                       problems: ProblemCollector, warnings: list[str]) -> pd.DataFrame:
     """Check sessions.csv; return participant_id, session_id, start, end, duration_s.
 
@@ -87,6 +88,7 @@ def validate_sessions(table: CsvTable, known_participants: set[str], timezone: s
     holds the rows that passed.
     """
     frame = table.frame
+    timezone = cfg.timezone
     ok = check_ids(table, "participant_id", problems, "participant ID")
     ok &= check_ids(table, "session_id", problems, "session ID")
     known = frame["participant_id"].isin(known_participants).to_numpy()
@@ -112,6 +114,14 @@ def validate_sessions(table: CsvTable, known_participants: set[str], timezone: s
     report(table, "end", short, problems, "is less than one second after start",
            hint="a session lasts at least one second")
     ok &= ~short
+    too_long = ok & (duration_s > cfg.max_session_hours * 3600)
+    for row in np.flatnonzero(too_long):
+        problems.add(table.label, f"makes the session {duration_s[row] / 3600:.1f} hours long, "
+                     f"more than [study] max_session_hours = {cfg.max_session_hours:g}",
+                     line=int(table.lines[row]), column="end", value=frame["end"].iloc[row],
+                     hint="check the dates of start and end, or raise max_session_hours in "
+                     "study.toml")
+    ok &= ~too_long
     for row in np.flatnonzero(ok & (duration_s > LONG_SESSION_S)):
         warnings.append(f"{table.label}, line {int(table.lines[row])}: session "
                         f"{frame['participant_id'].iloc[row]}/{frame['session_id'].iloc[row]} "

@@ -130,3 +130,18 @@ def test_naive_times_in_default_utc_are_warned_about(tmp_path):
     write_study(tmp_path, toml=None)
     warnings = load(tmp_path).warnings
     assert any("read as UTC" in w for w in warnings)
+
+
+def test_session_longer_than_max_session_hours_is_refused(tmp_path):
+    # a year typed wrong: 2027 for 2026 makes the session a year long
+    _study(tmp_path, "p01,s1,2026-03-01T19:00:00Z,2026-03-01T19:00:20Z",
+           "p02,s1,2026-03-01T19:00:00Z,2027-03-01T19:00:20Z")
+    assert_names(refusal(tmp_path), "sessions.csv", 3, "end", "2027-03-01T19:00:20Z",
+                 says="more than [study] max_session_hours = 168")
+
+
+def test_session_over_a_day_is_a_warning(tmp_path):
+    _study(tmp_path, "p01,s1,2026-03-01T19:00:00Z,2026-03-01T19:00:20Z",
+           "p02,s1,2026-03-01T19:00:00Z,2026-03-03T19:00:20Z")
+    warnings = load(tmp_path).warnings
+    assert any("p02/s1 lasts 48.0 hours" in w for w in warnings)

@@ -49,13 +49,23 @@ def bateman_peak_s(tau_rise_s: float, tau_decay_s: float) -> float:
 
 
 # ------------------------------------------------------------ slow processes
-def ar1(rng: np.random.Generator, n: int, tau: float) -> np.ndarray:
-    """Stationary first-order autoregressive series, unit variance, time constant tau steps."""
+def smooth_noise(rng: np.random.Generator, n: int, tau: float) -> np.ndarray:
+    """Stationary smooth random series, unit variance, time constant ``tau`` steps.
+
+    White noise through two first-order low-pass stages (a critically damped
+    second-order filter): unlike a first-order process it has no step-to-step jumps,
+    so slow tonic changes never look like skin conductance responses. A burn-in of
+    ten time constants makes the start stationary.
+    """
     a = float(np.exp(-1.0 / tau))
-    e = rng.standard_normal(n)
-    x0 = rng.standard_normal()
-    y, _ = sps.lfilter([np.sqrt(1 - a * a)], [1.0, -a], e, zi=[a * x0])
-    return y
+    burn = int(np.ceil(10 * tau))
+    e = rng.standard_normal(n + burn)
+    once = sps.lfilter([1 - a], [1.0, -a], e)
+    twice = sps.lfilter([1 - a], [1.0, -a], once)[burn:]
+    # variance of white noise through the two stages: sum of the squared impulse response
+    k = np.arange(burn * 4 + 1)
+    h = (1 - a) ** 2 * (k + 1) * a**k
+    return twice / np.sqrt(np.sum(h**2))
 
 
 def follow(x: np.ndarray, tau: float) -> np.ndarray:
@@ -128,8 +138,8 @@ def simulate_recording(rng: np.random.Generator, state: np.ndarray, switch_s: np
     level = follow(levels[ext], ar.transition_time_constant_s)
     spread = follow(spreads[ext], ar.transition_time_constant_s)
     session_shift = rng.normal(0.0, ar.session_offset_sd_us)
-    fluct = ar1(rng, len(secs), ar.fluctuation_time_constant_s)
-    drift = ar.drift_sd_us * ar1(rng, len(secs), ar.drift_time_constant_min * 60.0)
+    fluct = smooth_noise(rng, len(secs), ar.fluctuation_time_constant_s)
+    drift = ar.drift_sd_us * smooth_noise(rng, len(secs), ar.drift_time_constant_min * 60.0)
     tonic = np.maximum(scl_baseline_us + session_shift + level + spread * fluct + drift,
                        ar.floor_us)
     clean = np.interp(v, secs, tonic)
@@ -182,14 +192,14 @@ def simulate_recording(rng: np.random.Generator, state: np.ndarray, switch_s: np
     if hr.enabled:
         hr_sec = (hr_baseline_bpm + follow(np.where(ext == MULTI, hr.multi_shift_bpm, 0.0),
                                            opts.arousal.transition_time_constant_s)
-                  + hr.fluctuation_sd_bpm * ar1(rng, len(secs), hr.fluctuation_time_constant_s))
+                  + hr.fluctuation_sd_bpm * smooth_noise(rng, len(secs), hr.fluctuation_time_constant_s))
         hr_times = np.arange(0.0, t[-1] + 1e-9, 1.0 / hr.rate_hz)
         hr_idx = np.unique(np.minimum(np.searchsorted(t, hr_times - 1e-9), n - 1))
         hr_bpm = np.full(n, np.nan)
         hr_bpm[hr_idx] = np.round(np.interp(v[hr_idx], secs, hr_sec), 1)
         channels["hr_bpm"] = hr_bpm
-    tilt_x = sen.tilt_sd_rad * ar1(rng, len(secs), sen.tilt_time_constant_s)
-    tilt_y = sen.tilt_sd_rad * ar1(rng, len(secs), sen.tilt_time_constant_s)
+    tilt_x = sen.tilt_sd_rad * smooth_noise(rng, len(secs), sen.tilt_time_constant_s)
+    tilt_y = sen.tilt_sd_rad * smooth_noise(rng, len(secs), sen.tilt_time_constant_s)
     ax = np.sin(np.interp(v, secs, tilt_x))
     ay = np.sin(np.interp(v, secs, tilt_y))
     az = np.sqrt(np.clip(1.0 - ax**2 - ay**2, 0.0, None))

@@ -6,28 +6,9 @@ from pathlib import Path
 
 import pytest
 
+from synth_fixtures import small_options
 from synthetic_diaries.generator import generate_study
-from synthetic_diaries.options import SynthOptions, options_from_dict
-
-#: Small but complete: two cohorts, double coding, every artifact kind, uncoded stretches.
-SMALL = {
-    "seed": 7,
-    "participants_per_cohort": 2,
-    "sessions_per_participant": 2,
-    "session_hours": 0.7,
-    "sampling_rate_hz": 8.0,
-    "truth_simulation_hours": 8.0,
-    "coding": {"double_coded_share": 0.5},
-    "uncoded": {"rate_per_hour": 4.0},
-    "artifacts": {"dropout_rate_per_hour": 4.0, "spike_rate_per_hour": 6.0,
-                  "motion_rate_per_hour": 6.0, "flatline_rate_per_hour": 3.0,
-                  "clipping_rate_per_hour": 3.0},
-}
-
-
-def small_options(**changes) -> SynthOptions:
-    data = {**SMALL, **changes}
-    return options_from_dict(data, "test options")
+from synthetic_diaries.options import SynthOptions
 
 
 @pytest.fixture(scope="session")

@@ -107,13 +107,19 @@ def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
             ok = (s[valid_col].to_numpy(dtype=bool)[inside] if valid_col and valid_col in s
                   else np.ones(len(vals), dtype=bool))
             frame[col] = _bin_means(sec_in, vals, ok, n)
-        for valid_col, out_col in (("eda_valid", "signal_valid"), ("hr_valid", "hr_valid")):
-            if valid_col in s.columns:
-                good = np.bincount(sec_in[s[valid_col].to_numpy(dtype=bool)[inside]],
-                                   minlength=n)[:n]
-                frame[out_col] = (good / expected) >= cfg.eda.min_valid_share
-            else:
-                frame[out_col] = False
+        if "eda_valid" in s.columns:
+            good = np.bincount(sec_in[s["eda_valid"].to_numpy(dtype=bool)[inside]],
+                               minlength=n)[:n]
+            frame["signal_valid"] = (good / expected) >= cfg.eda.min_valid_share
+        else:
+            frame["signal_valid"] = False
+        # Heart rate is a slow series, often sampled once a second or once a beat
+        # beside faster EDA: a second has valid HR when it holds a valid HR value.
+        if "hr_valid" in s.columns and "hr_bpm" in s.columns:
+            hr_ok = s["hr_valid"].to_numpy(dtype=bool) & np.isfinite(s["hr_bpm"].to_numpy(float))
+            frame["hr_valid"] = np.bincount(sec_in[hr_ok[inside]], minlength=n)[:n] > 0
+        else:
+            frame["hr_valid"] = False
         scrs = signals.scrs
         onset_v = clock.to_video(scrs["onset_s"].to_numpy(dtype=float))
         keep = (onset_v >= 0) & (onset_v < n)

@@ -87,3 +87,15 @@ def test_no_recording_gives_invalid_signal_and_a_flag():
 def test_backwards_clock_is_a_stage_error():
     with pytest.raises(StageError, match="runs backwards"):
         build_timeline(_inputs(5, [[0, 100], [100, 0]]), None, SignalSettings())
+
+
+def test_heart_rate_sampled_once_a_second_is_valid_beside_faster_eda():
+    # EDA at 4 Hz, HR once a second (NaN between): every second holds one HR value.
+    t = np.arange(0, 5, 0.25)
+    sig = _signals(t, np.full(len(t), 5.0))
+    hr = np.where(np.isclose(t % 1, 0), 60.0 + t, np.nan)
+    sig.samples["hr_bpm"] = hr
+    sig.samples["hr_valid"] = np.isfinite(hr)
+    tl = build_timeline(_inputs(5, []), sig, SignalSettings()).timeline
+    assert tl["hr_valid"].all()
+    assert tl["hr_bpm"].to_numpy() == pytest.approx([60, 61, 62, 63, 64])

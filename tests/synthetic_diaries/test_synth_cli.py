@@ -14,6 +14,13 @@ TINY = ["--participants-per-cohort", "1", "--sessions", "1", "--hours", "0.3",
         "--rate-hz", "4", "--seed", "3"]
 
 
+def _quick(tmp_path) -> list[str]:
+    """A config file that keeps the truth's Monte Carlo short, so the tests stay fast."""
+    cfg = tmp_path / "quick.toml"
+    cfg.write_text("truth_simulation_hours = 4.0\n", encoding="utf-8")
+    return ["--config", str(cfg)]
+
+
 def test_help_names_the_main_options():
     # wide enough a terminal that rich prints the option names in full
     result = runner.invoke(app, ["synth", "--help"],
@@ -27,7 +34,8 @@ def test_help_names_the_main_options():
 
 def test_synth_writes_a_study_and_says_what(tmp_path):
     out = tmp_path / "study"
-    result = runner.invoke(app, ["synth", str(out), *TINY, "--no-artifacts", "--no-uncoded",
+    result = runner.invoke(app, ["synth", str(out), *TINY, *_quick(tmp_path),
+                                 "--no-artifacts", "--no-uncoded",
                                  "--drift-ppm", "-15", "--offset-s", "30",
                                  "--double-coded-share", "1"])
     assert result.exit_code == 0, result.output
@@ -43,17 +51,18 @@ def test_synth_writes_a_study_and_says_what(tmp_path):
     assert params["options"]["clock"]["drift_ppm"] == -15.0
     assert params["options"]["clock"]["offset_s"] == 30.0
     assert params["options"]["sampling_rate_hz"] == 4.0
+    assert params["options"]["truth_simulation_hours"] == 4.0  # from the config file
 
 
 def test_refuses_a_non_empty_folder_unless_forced(tmp_path):
     out = tmp_path / "study"
     out.mkdir()
     (out / "notes.txt").write_text("mine")
-    result = runner.invoke(app, ["synth", str(out), *TINY])
+    result = runner.invoke(app, ["synth", str(out), *TINY, *_quick(tmp_path)])
     assert result.exit_code == 2
     assert "not empty" in result.output and "--force" in result.output
     assert not (out / "roster.csv").exists()
-    result = runner.invoke(app, ["synth", str(out), *TINY, "--force"])
+    result = runner.invoke(app, ["synth", str(out), *TINY, *_quick(tmp_path), "--force"])
     assert result.exit_code == 0, result.output
     assert (out / "notes.txt").read_text() == "mine"  # only the study's own files replaced
     assert (out / "roster.csv").exists()
@@ -62,6 +71,7 @@ def test_refuses_a_non_empty_folder_unless_forced(tmp_path):
 def test_config_file_sets_the_rest_and_flags_win(tmp_path):
     cfg = tmp_path / "synth.toml"
     cfg.write_text('seed = 99\nstudy_name = "Invented panel"\nsurvey = false\n'
+                   'truth_simulation_hours = 4.0\n'
                    '[coding]\ndouble_coded_share = 0.0\n', encoding="utf-8")
     out = tmp_path / "study"
     result = runner.invoke(app, ["synth", str(out), "--config", str(cfg), *TINY])

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import time
 import warnings
 
 import numpy as np
@@ -139,3 +140,24 @@ def test_artifacts_are_in_the_recording_where_truth_says(small_study, small_opts
         untouched = ~np.logical_or.reduce(list(masks.values()))
         assert np.isfinite(eda[untouched]).all()
         assert ((eda[untouched] > 0.5) & (eda[untouched] < 30)).all()
+
+
+def test_a_four_hour_32_hz_session_generates_in_seconds():
+    # The generator is vectorised over samples: 460 800 samples of six channels. The
+    # bound is loose (measured about 0.3 s on one core) so a busy machine does not fail it.
+    from synthetic_diaries.codes import _simulate, count_switches
+
+    opts = SynthOptions(sampling_rate_hz=32.0)
+    cohort = opts.cohorts[0]
+    began = time.perf_counter()
+    rng = np.random.default_rng(0)
+    codes = _simulate(rng, cohort, 4 * 3600, 1.0, sorted(opts.platform_groups))
+    empty = np.array([], dtype=np.int64)
+    _, switch_s = count_switches(codes.bout_start, codes.bout_end, codes.bout_platform,
+                                 empty, empty)
+    rec = simulate_recording(rng, codes.state, switch_s, scl_baseline_us=7.0,
+                             hr_baseline_bpm=70.0, cohort=cohort, offset_s=90.0,
+                             rate=1.00004, opts=opts)
+    took = time.perf_counter() - began
+    assert len(rec.samples) > 4 * 3600 * 32
+    assert took < 5.0

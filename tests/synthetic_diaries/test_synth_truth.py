@@ -8,25 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-
-def _recount_switches(seconds: list[int], attended: list[str], max_gap_s: int = 3) -> int:
-    """Switches by CONTRACT §2, a plain loop over one coder's rows of one session."""
-    coded = set(seconds)
-    bouts: list[list] = []  # [platform, start, end)
-    prev = None
-    for sec, att in zip(seconds, attended):
-        if att:
-            if bouts and bouts[-1][0] == att and bouts[-1][2] == sec and prev == sec - 1:
-                bouts[-1][2] = sec + 1
-            else:
-                bouts.append([att, sec, sec + 1])
-        prev = sec
-    count = 0
-    for (p1, _, e1), (p2, s2, _) in zip(bouts, bouts[1:]):
-        gap = range(e1, s2)
-        if p1 != p2 and len(gap) <= max_gap_s and all(g in coded for g in gap):
-            count += 1
-    return count
+from synth_fixtures import recount_switches
 
 
 @pytest.fixture(scope="module")
@@ -43,7 +25,7 @@ def test_truth_switches_match_a_recount_from_the_media_log(tables):
     for row in truth.itertuples():
         rows = log[(log["participant_id"] == row.participant_id)
                    & (log["session_id"] == row.session_id)].sort_values("second")
-        assert _recount_switches(rows["second"].tolist(), rows["attended"].tolist()) \
+        assert recount_switches(rows["second"].tolist(), rows["attended"].tolist()) \
             == row.switches, (row.participant_id, row.session_id)
 
 

@@ -205,8 +205,8 @@ def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list
             coder = wanted if wanted in coders else coders[0]
             if len(coders) > 1:
                 notes.append(f"{key.label()}: coded by {', '.join(coders)}; run uses "
-                             f"{coder!r}" + ("" if wanted in coders else
-                                             " (first in sorted order)"))
+                             f"{coder!r}" + (" ([coding] primary_coder)" if wanted in coders
+                                             else " (first in sorted order)"))
         codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
         pairs = sync.get((key.participant_id, key.session_id))
         out.append(SessionInputs(
@@ -478,11 +478,20 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     for i in ok:
         methods["signals"].update(prepared[i].methods)
     summary += _describe(study, cfg, sessions, qc)
-    summary += coder_notes
+    if coder_notes:
+        summary.append(f"{len(coder_notes)} session(s) coded by several coders; run uses one "
+                       "coder per session (each is named in qc/sessions.csv; `screenweave "
+                       "agree` compares them)")
+    details = list(coder_notes)
 
     # -- models and group analyses
     t0 = time.perf_counter()
-    summary += _group_analyses(study, cfg, tables, finished, ok, outdir, methods)
+    analysis_lines = _group_analyses(study, cfg, tables, finished, ok, outdir, methods)
+    details += analysis_lines
+    summary += _headlines(analysis_lines)
+    if analysis_lines:
+        outdir.text("models/summary.txt", "\n".join(analysis_lines) + "\n", "models")
+        summary.append("full model summary: models/summary.txt")
     timings["models_s"] = time.perf_counter() - t0
 
     manifest = {
@@ -505,6 +514,7 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
         "failures": failures,
         "warnings": study.warnings,
         "summary": summary,
+        "details": details,
     }
     if report:
         t0 = time.perf_counter()
@@ -516,6 +526,16 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     outdir.json("manifest.json", manifest, "runner")
     return RunResult(out=outdir.root, sessions_total=total, sessions_ok=len(ok),
                      failures=failures, summary=summary, manifest=manifest)
+
+
+def _headlines(lines: list[str]) -> list[str]:
+    """The model lines worth a terminal: the switch-rate comparison and the discoveries."""
+    picked = [ln for ln in lines if ln.startswith("models:")]
+    picked += [ln for ln in lines if ln.startswith("switches_per_hour,")]
+    picked += [ln for ln in lines if "a discovery at false discovery rate" in ln
+               and ln not in picked]
+    picked += [ln for ln in lines if ln.startswith("switch rate,") and "disagree" in ln]
+    return picked
 
 
 def _describe(study: Study, cfg: Config, sessions: pd.DataFrame, qc: pd.DataFrame) -> list[str]:

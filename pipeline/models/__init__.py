@@ -41,7 +41,7 @@ from pipeline.models.survey import SURVEY_METHODS, compare_survey
 from pipeline.types import STATES
 
 __all__ = ["COMPARISON_COLUMNS", "ModelResults", "compare", "compare_survey",
-           "model_session_outcome", "fit_mixed"]
+           "model_session_outcome", "switch_rate_model", "fit_mixed"]
 
 #: Columns of models/comparisons.csv: CONTRACT §3, then the additions.
 COMPARISON_COLUMNS = ["outcome", "model", "term", "estimate", "std_error", "ci_low",
@@ -212,6 +212,36 @@ def model_session_outcome(data: pd.DataFrame, outcome: str, *, cohorts: list[str
     return _fit_rows(outcome, MIXED, fit, scale, extra_notes or []), fit
 
 
+def log_switch_rate(sessions: pd.DataFrame, offset: float) -> tuple[np.ndarray, list[str]]:
+    """log(switches_per_hour), or log((switches + offset) / multi_hours) for every session
+    when any session has zero switches; the note says which."""
+    rate = pd.to_numeric(sessions["switches_per_hour"], errors="coerce").to_numpy(float)
+    zero = int((rate <= 0).sum())
+    if not zero:
+        return np.log(rate), []
+    y = np.log((pd.to_numeric(sessions["switches"]).to_numpy(float) + offset)
+               / pd.to_numeric(sessions["multi_hours"]).to_numpy(float))
+    return y, [f"{zero} session(s) with zero switches: log((switches + {offset:g}) / "
+               "multi_hours) used for every session"]
+
+
+def switch_rate_model(sessions: pd.DataFrame, models: ModelSettings, cohorts: list[str],
+                      reference: str, min_participants: int = 3
+                      ) -> tuple[pd.DataFrame, FitResult | None]:
+    """The cohort comparison of log switches_per_hour, as :func:`compare` fits it.
+
+    ``sessions``: participant_id, cohort, switches, multi_hours, switches_per_hour
+    (sessions with NaN rates are left out). No covariates. Used by the power analysis,
+    so that power is computed for exactly the model the study will be analysed with.
+    """
+    d = sessions[pd.to_numeric(sessions["switches_per_hour"], errors="coerce").notna()].copy()
+    y, notes = log_switch_rate(d, models.zero_count_offset)
+    d["y"] = y
+    return model_session_outcome(d, "switches_per_hour", cohorts=cohorts, reference=reference,
+                                 covariates=[], log=True, models=models,
+                                 min_participants=min_participants, extra_notes=notes)
+
+
 def _session_outcome_frame(sessions: pd.DataFrame, groups: pd.DataFrame, outcome: str,
                            ctx: _Context) -> list[tuple[str, pd.DataFrame, list[str],
                                                         str | None]]:
@@ -252,12 +282,10 @@ def _session_outcome_frame(sessions: pd.DataFrame, groups: pd.DataFrame, outcome
         values = values[values.notna()]
         problem = None
         if log:
-            if col == "switches_per_hour" and (values <= 0).any():
-                off = m.zero_count_offset
-                y = np.log((pd.to_numeric(d["switches"]) + off) / d["multi_hours"])
-                notes.append(f"{int((values <= 0).sum())} session(s) with zero switches: "
-                             f"log((switches + {off:g}) / multi_hours) used for every session")
-                ctx.offset_used = True
+            if col == "switches_per_hour":
+                y, more = log_switch_rate(d, m.zero_count_offset)
+                notes.extend(more)
+                ctx.offset_used = ctx.offset_used or bool(more)
             elif (values <= 0).any():
                 y = values * np.nan
                 problem = (f"not fitted: {label} has {int((values <= 0).sum())} value(s) at or "

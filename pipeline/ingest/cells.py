@@ -8,6 +8,8 @@ only the bad rows are visited one by one to build their messages.
 
 from __future__ import annotations
 
+from typing import Any, Callable
+
 import numpy as np
 import pandas as pd
 
@@ -17,6 +19,28 @@ from pipeline.ingest.csvfile import CsvTable
 #: Integers above this cannot be a second of a session (about 285 million years);
 #: they also lose precision as float64 (2**53).
 MAX_INTEGER = 2**53
+
+
+def by_unique(text: pd.Series, fn: Callable[[pd.Series], Any]) -> np.ndarray:
+    """Apply ``fn`` (vectorised, on a Series of the distinct values) and map back to rows.
+
+    Study columns repeat few values (IDs, codes) or short ranges (seconds); working on
+    the distinct values keeps per-string work small on logs of millions of rows.
+    """
+    codes, uniques = pd.factorize(text)
+    result = np.asarray(fn(pd.Series(np.asarray(uniques, dtype=object), dtype=object)))
+    if len(result) == 0:
+        return np.zeros(len(text), dtype=result.dtype)
+    return result[codes]
+
+
+def pair_codes(a: pd.Series, b: pd.Series) -> tuple[np.ndarray, list[tuple[Any, Any]]]:
+    """Code each row's (a, b) pair: (index of the pair per row, the distinct pairs)."""
+    ca, ua = pd.factorize(a)
+    cb, ub = pd.factorize(b)
+    nb = max(len(ub), 1)
+    inverse, combos = pd.factorize(ca.astype(np.int64) * nb + cb)
+    return inverse, [(ua[k // nb], ub[k % nb]) for k in combos]
 
 
 def report(table: CsvTable, column: str, bad: np.ndarray, problems: ProblemCollector,
@@ -43,8 +67,9 @@ def non_negative_integers(table: CsvTable, column: str, problems: ProblemCollect
     Returns (values as int64 with 0 where bad, mask of good rows).
     """
     text = table.frame[column]
-    numbers = pd.to_numeric(text.where(text.str.fullmatch(r"[+]?[0-9]+(\.0*)?"), None),
-                            errors="coerce").to_numpy(dtype=float)
+    numbers = by_unique(text, lambda u: pd.to_numeric(
+        u.where(u.str.fullmatch(r"[+]?[0-9]+(\.0*)?"), None), errors="coerce"
+    ).to_numpy(dtype=float))
     good = np.isfinite(numbers) & (numbers >= 0) & (numbers < MAX_INTEGER)
     empty = (text == "").to_numpy()
     report(table, column, empty, problems, f"is empty: {what} is required",
@@ -63,8 +88,8 @@ def finite_numbers(table: CsvTable, column: str, problems: ProblemCollector,
     Returns (values as float64 with NaN where bad, mask of good rows).
     """
     text = table.frame[column]
-    numbers = pd.to_numeric(text.str.replace(r"^\+", "", regex=True), errors="coerce")
-    numbers = numbers.to_numpy(dtype=float)
+    numbers = by_unique(text, lambda u: pd.to_numeric(
+        u.str.replace(r"^\+", "", regex=True), errors="coerce").to_numpy(dtype=float))
     good = np.isfinite(numbers)
     empty = (text == "").to_numpy()
     report(table, column, empty, problems, f"is empty: {what} is required", hint=hint)

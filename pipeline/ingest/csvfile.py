@@ -94,6 +94,18 @@ def _decode(data: bytes, label: str) -> str:
                          "it under 'Save as')") from None
 
 
+def _first_line(text: str) -> str:
+    """The first line holding more than spaces (the header), without splitting the file."""
+    start = 0
+    while True:
+        ends = [i for i in (text.find("\n", start), text.find("\r", start)) if i >= 0]
+        end = min(ends) if ends else len(text)
+        line = text[start:end]
+        if line.strip() or end >= len(text):
+            return line
+        start = end + 1
+
+
 def _separator(header_line: str) -> str:
     if "," in header_line:
         return ","
@@ -157,6 +169,14 @@ def _parse(text: str, sep: str, label: str) -> pd.DataFrame:
         raise InputError(label, problem, line=line, hint=hint) from None
 
 
+def _strip(col: pd.Series) -> pd.Series:
+    """Strip spaces around each value, once per distinct value."""
+    codes, uniques = pd.factorize(col)
+    stripped = np.asarray(pd.Index(uniques, dtype=object).str.strip(), dtype=object)
+    return pd.Series(stripped[codes] if len(stripped) else col.to_numpy(), index=col.index,
+                     dtype=object)
+
+
 def _sep_name(sep: str) -> str:
     return {",": "comma", ";": "semicolon", "\t": "tab"}.get(sep, repr(sep))
 
@@ -190,12 +210,13 @@ def read_table(path: Path, label: str, required: list[str], *,
     if not text.strip():
         raise InputError(label, "is empty", line=1,
                          hint=f"the first line must name the columns: {', '.join(required)}")
-    first = next(line for line in text.splitlines() if line.strip())
-    sep = _separator(first)
+    sep = _separator(_first_line(text))
     raw = _parse(text, sep, label)
     starts = _record_start_lines(text, sep, len(raw))
-    raw = raw.apply(lambda col: col.str.strip())
-    blank = (raw == "").all(axis=1).to_numpy()
+    raw = raw.apply(_strip)
+    blank = (raw[0] == "").to_numpy()
+    if blank.any():  # rows whose first value is empty: blank only when all values are
+        blank[blank] = (raw[blank] == "").all(axis=1).to_numpy()
     raw, starts = raw[~blank], starts[~blank]
     if raw.empty:  # only blank lines and spaces
         raise InputError(label, "is empty", line=1,

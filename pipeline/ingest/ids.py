@@ -12,7 +12,7 @@ import re
 import numpy as np
 
 from pipeline.errors import ProblemCollector
-from pipeline.ingest.cells import report
+from pipeline.ingest.cells import by_unique, report
 from pipeline.ingest.csvfile import CsvTable
 
 ID_PATTERN = r"[A-Za-z0-9_-]{1,64}"
@@ -34,7 +34,7 @@ def check_ids(table: CsvTable, column: str, problems: ProblemCollector, what: st
     """Mask of rows whose ``column`` holds a valid ID; the others become problems."""
     text = table.frame[column]
     empty = (text == "").to_numpy()
-    good = text.str.fullmatch(ID_PATTERN).to_numpy(dtype=bool)
+    good = by_unique(text, lambda u: u.str.fullmatch(ID_PATTERN).to_numpy(dtype=bool))
     report(table, column, empty, problems, f"is empty: every row needs a {what}",
            hint=f"a {what} is {ID_RULE}")
     for row in np.flatnonzero(~good & ~empty):

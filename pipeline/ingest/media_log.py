@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.errors import InputError, ProblemCollector
-from pipeline.ingest.cells import non_negative_integers, report
+from pipeline.ingest.cells import non_negative_integers, pair_codes, report
 from pipeline.ingest.csvfile import CsvTable, missing_columns, read_table
 from pipeline.ingest.sessions import session_rows
 
@@ -167,9 +167,7 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
 
     # attended: one code, one of in_view; each distinct (in_view, attended) checked once
     attended = frame["attended"]
-    pairs = pd.MultiIndex.from_arrays([pd.Index(norm_rows, dtype=object),
-                                       pd.Index(attended.to_numpy(), dtype=object)])
-    pinverse, upairs = pairs.factorize()
+    pinverse, upairs = pair_codes(pd.Series(norm_rows, dtype=object), attended)
     verdict = []
     for view, att in upairs:
         if att == "":
@@ -214,6 +212,25 @@ def _expand(starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarra
     offsets = np.repeat(np.cumsum(lengths) - lengths, lengths)
     seconds = starts[which] + (np.arange(lengths.sum()) - offsets)
     return which, seconds.astype(np.int64)
+
+
+def _combinations_text(on: np.ndarray, codes: list[str]) -> np.ndarray:
+    """Row-wise text of a (seconds x codes) boolean matrix: the codes set, ';'-joined.
+
+    Each distinct combination is turned into text once (codes are few, seconds many).
+    """
+    if len(codes) <= 62:
+        key = np.zeros(len(on), dtype=np.int64)
+        for i in range(len(codes)):
+            key |= on[:, i].astype(np.int64) << i
+        combo_of, combos = pd.factorize(key)
+        rows = [[(int(k) >> i) & 1 for i in range(len(codes))] for k in combos]
+    else:
+        uniq, combo_of = np.unique(on, axis=0, return_inverse=True)
+        rows = uniq.tolist()
+    text = np.asarray([";".join(c for c, bit in zip(codes, row) if bit) for row in rows],
+                      dtype=object)
+    return text[np.asarray(combo_of).reshape(-1)] if len(text) else np.zeros(0, dtype=object)
 
 
 def _interval_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, coder: str,
@@ -289,10 +306,7 @@ def _interval_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, c
     in_view = np.zeros((n_base, len(codes)), dtype=bool)
     in_view[base_row, code_idx[rows_v]] = True
     line_of[base_row] = iv["line"].to_numpy()[rows_v]
-    combos, combo_of = np.unique(in_view, axis=0, return_inverse=True)
-    combo_text = np.asarray([";".join(c for c, on in zip(codes, combo) if on) for combo in combos],
-                            dtype=object)
-    in_view_text = combo_text[np.asarray(combo_of).reshape(-1)]
+    in_view_text = _combinations_text(in_view, codes)
 
     # attended: at most one platform per second, and that platform in view
     att = ~view

@@ -14,7 +14,7 @@ import pandas as pd
 
 from pipeline.config import StudySettings
 from pipeline.errors import ProblemCollector
-from pipeline.ingest.cells import duplicated_rows, report
+from pipeline.ingest.cells import duplicated_rows, pair_codes, report
 from pipeline.ingest.csvfile import CsvTable
 from pipeline.ingest.ids import check_ids
 
@@ -150,9 +150,11 @@ def session_rows(table: CsvTable, sessions: pd.DataFrame, problems: ProblemColle
     Rows naming no session of sessions.csv become problems (on participant_id when the
     participant has no session at all, else on session_id).
     """
-    index = pd.MultiIndex.from_frame(sessions[["participant_id", "session_id"]])
-    rows = pd.MultiIndex.from_frame(table.frame[["participant_id", "session_id"]])
-    pos = index.get_indexer(rows)
+    inverse, pairs = pair_codes(table.frame["participant_id"], table.frame["session_id"])
+    where = {pair: i for i, pair in enumerate(
+        zip(sessions["participant_id"], sessions["session_id"]))}
+    pos = np.asarray([where.get(pair, -1) for pair in pairs], dtype=np.int64)
+    pos = pos[inverse] if len(pos) else np.zeros(len(table), dtype=np.int64)
     missing = pos < 0
     known_p = table.frame["participant_id"].isin(set(sessions["participant_id"])).to_numpy()
     report(table, "participant_id", missing & ~known_p, problems,

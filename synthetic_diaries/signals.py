@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from scipy import signal as sps
 
+from pipeline.errors import ConfigError
 from synthetic_diaries.codes import MULTI, NONE, STATE_NAMES
 from synthetic_diaries.options import CohortBehaviour, SynthOptions
 
@@ -40,6 +41,16 @@ def bateman_kernel(fs: float, tau_rise_s: float, tau_decay_s: float) -> np.ndarr
 SCR_SHAPES: dict[str, Callable[[float, float, float], np.ndarray]] = {
     "bateman": bateman_kernel,
 }
+
+
+def scr_kernel(shape: str, fs: float, tau_rise_s: float, tau_decay_s: float) -> np.ndarray:
+    """The SCR impulse response named ``shape`` (a key of :data:`SCR_SHAPES`)."""
+    try:
+        fn = SCR_SHAPES[shape]
+    except KeyError:
+        raise ConfigError(f"unknown SCR shape {shape!r}",
+                          hint=f"choose one of {', '.join(sorted(SCR_SHAPES))}") from None
+    return fn(fs, tau_rise_s, tau_decay_s)
 
 
 def bateman_peak_s(tau_rise_s: float, tau_decay_s: float) -> float:
@@ -164,7 +175,7 @@ def simulate_recording(rng: np.random.Generator, state: np.ndarray, switch_s: np
     idx, amp, cause = idx[order], amp[order], cause[order]
     impulses = np.zeros(n)
     np.add.at(impulses, idx, amp)
-    kernel = SCR_SHAPES[sc.shape](fs, sc.tau_rise_s, sc.tau_decay_s)
+    kernel = scr_kernel(sc.shape, fs, sc.tau_rise_s, sc.tau_decay_s)
     clean = clean + sps.oaconvolve(impulses, kernel)[:n]
 
     # --- truth on the video clock

@@ -161,3 +161,12 @@ def test_a_four_hour_32_hz_session_generates_in_seconds():
     took = time.perf_counter() - began
     assert len(rec.samples) > 4 * 3600 * 32
     assert took < 5.0
+
+
+def test_unknown_scr_shape_names_the_choices():
+    from pipeline.errors import ConfigError
+    from synthetic_diaries.signals import scr_kernel
+
+    with pytest.raises(ConfigError) as exc:
+        scr_kernel("sigmoid", 32.0, 0.75, 3.75)
+    assert "bateman" in exc.value.hint

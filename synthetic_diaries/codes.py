@@ -377,7 +377,8 @@ def count_switches(bout_start: np.ndarray, bout_end: np.ndarray, bout_platform: 
 
     Returns the count and the second of each switch (first second of the bout entered).
     """
-    start, end, plat = (np.asarray(a, dtype=np.int64) for a in (bout_start, bout_end, bout_platform))
+    start, end, plat = (np.asarray(a, dtype=np.int64)
+                        for a in (bout_start, bout_end, bout_platform))
     for u0, u1 in zip(np.asarray(uncoded_start), np.asarray(uncoded_end)):
         hit = (start < u1) & (end > u0)
         if not hit.any():

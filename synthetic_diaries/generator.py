@@ -111,7 +111,8 @@ def _participants(opts: SynthOptions) -> list[Participant]:
                                 a.scl_min_us, a.scl_max_us))
             hr = float(rng.normal(opts.heart.baseline_mean_bpm, opts.heart.baseline_sd_bpm))
             birth = int(np.rint(rng.normal(cohort.birth_year_mean, cohort.birth_year_sd)))
-            joins = j > 0 and not shared_prev and house_rng.random() < opts.household_share_probability
+            joins = (j > 0 and not shared_prev
+                     and house_rng.random() < opts.household_share_probability)
             if not joins:
                 household += 1
             shared_prev = joins

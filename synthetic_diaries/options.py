@@ -235,13 +235,19 @@ class ArousalOptions(_Strict):
         "2-20 uS (Dawson, Schell & Filion, Handbook of Psychophysiology).",
     )
     scl_sd_log: float = Field(0.3, ge=0, description="SD of log baseline SCL across participants.")
-    scl_min_us: float = Field(3.0, gt=0, description="Participant baselines are clipped to at least this (uS).")
-    scl_max_us: float = Field(15.0, gt=0, description="Participant baselines are clipped to at most this (uS).")
+    scl_min_us: float = Field(
+        3.0, gt=0, description="Participant baselines are clipped to at least this (uS)."
+    )
+    scl_max_us: float = Field(
+        15.0, gt=0, description="Participant baselines are clipped to at most this (uS)."
+    )
     session_offset_sd_us: float = Field(
         0.4, ge=0, description="SD of a session's shift of the baseline (uS), day to day."
     )
     none_level_us: float = Field(-0.3, description="Tonic level shift with nothing in view (uS).")
-    single_level_us: float = Field(0.0, description="Tonic level shift in single-platform time (uS).")
+    single_level_us: float = Field(
+        0.0, description="Tonic level shift in single-platform time (uS)."
+    )
     multi_level_us: float = Field(0.5, description="Tonic level shift in multi-platform time (uS).")
     none_spread_us: float = Field(
         0.6, ge=0, description="SD of tonic fluctuation with nothing in view (uS)."
@@ -252,10 +258,12 @@ class ArousalOptions(_Strict):
         "is this times the cohort's compression_factor.",
     )
     fluctuation_time_constant_s: float = Field(
-        30.0, gt=0, description="Time constant of the tonic fluctuation (s, first-order)."
+        30.0, gt=0,
+        description="Time constant of the tonic fluctuation (s, each of its two low-pass stages).",
     )
     transition_time_constant_s: float = Field(
-        20.0, gt=0, description="Time constant with which level and spread follow a state change (s)."
+        20.0, gt=0,
+        description="Time constant with which level and spread follow a state change (s)."
     )
     drift_sd_us: float = Field(0.3, ge=0, description="SD of the slow tonic drift (uS).")
     drift_time_constant_min: float = Field(
@@ -323,7 +331,8 @@ class ScrOptions(_Strict):
         from synthetic_diaries.signals import SCR_SHAPES
 
         if v not in SCR_SHAPES:
-            raise ValueError(f"unknown SCR shape {v!r}; choose one of {', '.join(sorted(SCR_SHAPES))}")
+            raise ValueError(f"unknown SCR shape {v!r}; choose one of "
+                             f"{', '.join(sorted(SCR_SHAPES))}")
         return v
 
     @model_validator(mode="after")
@@ -340,7 +349,9 @@ class ScrOptions(_Strict):
 class ArtifactOptions(_Strict):
     """Recording artifacts on the sensor clock; every rate zero gives a clean recording."""
 
-    dropout_rate_per_hour: float = Field(1.0, ge=0, description="Dropouts (all channels NaN) per hour.")
+    dropout_rate_per_hour: float = Field(
+        1.0, ge=0, description="Dropouts (all channels NaN) per hour."
+    )
     dropout_median_s: float = Field(8.0, gt=0, description="Median dropout length (s).")
     spike_rate_per_hour: float = Field(2.0, ge=0, description="EDA spikes (1-3 samples) per hour.")
     spike_min_us: float = Field(2.0, gt=0, description="Smallest spike height (uS).")
@@ -470,13 +481,17 @@ class SensorOptions(_Strict):
     eda_resolution_us: float = Field(
         2.0**-10, gt=0, description="EDA quantisation step (uS); about 0.001 uS."
     )
-    acc_noise_sd_g: float = Field(0.01, ge=0, description="White noise SD on each accelerometer axis (g).")
+    acc_noise_sd_g: float = Field(
+        0.01, ge=0, description="White noise SD on each accelerometer axis (g)."
+    )
     acc_resolution_g: float = Field(
         1.0 / 64, gt=0, description="Accelerometer quantisation step (g); 8-bit at +/-2 g "
         "(common practice)."
     )
     tilt_sd_rad: float = Field(0.15, ge=0, description="SD of the slow wrist tilt (rad).")
-    tilt_time_constant_s: float = Field(120.0, gt=0, description="Time constant of the wrist tilt (s).")
+    tilt_time_constant_s: float = Field(
+        120.0, gt=0, description="Time constant of the wrist tilt (s)."
+    )
 
 
 class HeartOptions(_Strict):
@@ -484,31 +499,52 @@ class HeartOptions(_Strict):
 
     enabled: bool = Field(True, description="Write an hr_bpm channel.")
     rate_hz: float = Field(1.0, gt=0, description="Heart-rate samples per second.")
-    baseline_mean_bpm: float = Field(72.0, gt=30, description="Mean participant resting heart rate.")
-    baseline_sd_bpm: float = Field(8.0, ge=0, description="SD of resting heart rate across participants.")
-    multi_shift_bpm: float = Field(2.0, description="Heart-rate shift in multi-platform time (bpm).")
+    baseline_mean_bpm: float = Field(
+        72.0, gt=30, description="Mean participant resting heart rate."
+    )
+    baseline_sd_bpm: float = Field(
+        8.0, ge=0, description="SD of resting heart rate across participants."
+    )
+    multi_shift_bpm: float = Field(
+        2.0, description="Heart-rate shift in multi-platform time (bpm)."
+    )
     fluctuation_sd_bpm: float = Field(3.0, ge=0, description="SD of heart-rate fluctuation (bpm).")
-    fluctuation_time_constant_s: float = Field(20.0, gt=0, description="Time constant of that fluctuation (s).")
+    fluctuation_time_constant_s: float = Field(
+        20.0, gt=0, description="Time constant of that fluctuation (s)."
+    )
 
 
 class SynthOptions(_Strict):
     """Everything that defines a synthetic study; the study is a function of these."""
 
-    seed: int = Field(20241014, ge=0, description="Random seed: the same options give the same bytes.")
-    study_name: str = Field("Synthetic evening media study", description="Study title for study.toml.")
-    timezone: str = Field("Europe/Lisbon", description="IANA zone of the evenings; times carry its offset.")
+    seed: int = Field(
+        20241014, ge=0, description="Random seed: the same options give the same bytes."
+    )
+    study_name: str = Field(
+        "Synthetic evening media study", description="Study title for study.toml."
+    )
+    timezone: str = Field(
+        "Europe/Lisbon", description="IANA zone of the evenings; times carry its offset."
+    )
     first_evening: dt.date = Field(dt.date(2024, 10, 14), description="First possible evening.")
     study_days: int = Field(21, ge=1, description="Evenings are drawn from this many days.")
-    evening_start_earliest_h: float = Field(18.5, ge=0, lt=24, description="Earliest session start (local hour).")
-    evening_start_latest_h: float = Field(21.0, ge=0, lt=24, description="Latest session start (local hour).")
+    evening_start_earliest_h: float = Field(
+        18.5, ge=0, lt=24, description="Earliest session start (local hour)."
+    )
+    evening_start_latest_h: float = Field(
+        21.0, ge=0, lt=24, description="Latest session start (local hour)."
+    )
     participants_per_cohort: int = Field(6, ge=1, description="Participants in each cohort.")
     cohorts: list[CohortBehaviour] = Field(
         default_factory=_default_cohorts, description="The cohorts and their behaviour."
     )
-    sessions_per_participant: int = Field(3, ge=1, description="Sessions (evenings) per participant.")
+    sessions_per_participant: int = Field(
+        3, ge=1, description="Sessions (evenings) per participant."
+    )
     session_hours: float = Field(2.0, gt=0, description="Mean session length (hours).")
     session_hours_spread: float = Field(
-        0.1, ge=0, lt=1, description="Session lengths are uniform within +/- this share of session_hours."
+        0.1, ge=0, lt=1,
+        description="Session lengths are uniform within +/- this share of session_hours."
     )
     sampling_rate_hz: float = Field(32.0, gt=0, description="Sensor sampling rate (Hz).")
     participant_switch_sd_log: float = Field(
@@ -517,7 +553,8 @@ class SynthOptions(_Strict):
         "median 1): the participant random effect.",
     )
     household_share_probability: float = Field(
-        0.3, ge=0, le=1, description="Probability that a participant shares the previous one's household."
+        0.3, ge=0, le=1,
+        description="Probability that a participant shares the previous one's household."
     )
     platform_groups: dict[str, str] = Field(
         default_factory=lambda: dict(DEFAULT_PLATFORM_GROUPS),
@@ -536,7 +573,9 @@ class SynthOptions(_Strict):
     arousal: ArousalOptions = Field(default_factory=ArousalOptions, description="Tonic arousal.")
     scr: ScrOptions = Field(default_factory=ScrOptions, description="Skin conductance responses.")
     artifacts: ArtifactOptions = Field(default_factory=ArtifactOptions, description="Artifacts.")
-    uncoded: UncodedOptions = Field(default_factory=UncodedOptions, description="Uncoded stretches.")
+    uncoded: UncodedOptions = Field(
+        default_factory=UncodedOptions, description="Uncoded stretches."
+    )
     clock: ClockOptions = Field(default_factory=ClockOptions, description="Sensor clock and sync.")
     coding: CodingOptions = Field(default_factory=CodingOptions, description="Coders.")
     sensor: SensorOptions = Field(default_factory=SensorOptions, description="Sensor noise.")

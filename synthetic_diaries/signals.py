@@ -203,7 +203,8 @@ def simulate_recording(rng: np.random.Generator, state: np.ndarray, switch_s: np
     if hr.enabled:
         hr_sec = (hr_baseline_bpm + follow(np.where(ext == MULTI, hr.multi_shift_bpm, 0.0),
                                            opts.arousal.transition_time_constant_s)
-                  + hr.fluctuation_sd_bpm * smooth_noise(rng, len(secs), hr.fluctuation_time_constant_s))
+                  + hr.fluctuation_sd_bpm
+                  * smooth_noise(rng, len(secs), hr.fluctuation_time_constant_s))
         hr_times = np.arange(0.0, t[-1] + 1e-9, 1.0 / hr.rate_hz)
         hr_idx = np.unique(np.minimum(np.searchsorted(t, hr_times - 1e-9), n - 1))
         hr_bpm = np.full(n, np.nan)

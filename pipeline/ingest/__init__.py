@@ -112,6 +112,9 @@ def load_study(folder: Path, cfg: Config) -> Study:
                       allow_no_rows=True)
         if table is not None:
             sync = sync_file.validate_sync(table, sessions, problems)
+            if not len(table):
+                warnings.append("sync.csv: has no rows; every session is aligned at zero and "
+                                "flagged in QC")
     survey = None
     if (folder / "survey.csv").is_file():
         inputs.append(folder / "survey.csv")
@@ -120,6 +123,8 @@ def load_study(folder: Path, cfg: Config) -> Study:
         if table is not None:
             survey = survey_file.validate_survey(table, set(roster["participant_id"]),
                                                  cfg.survey, problems, warnings)
+            if not len(table):
+                warnings.append("survey.csv: has no rows; no survey item is analysed")
     problems.raise_if_any()
 
     if declared is None:

@@ -29,7 +29,16 @@ def test_no_sync_file_gives_an_empty_table_and_a_warning(tmp_path):
 
 def test_sync_with_header_only_means_no_events(tmp_path):
     write_study(tmp_path, sync=SYNC_HEADER)
-    assert load(tmp_path).sync.empty
+    study = load(tmp_path)
+    assert study.sync.empty
+    assert any(w.startswith("sync.csv: has no rows") for w in study.warnings)
+
+
+def test_survey_with_header_only_is_an_empty_table(tmp_path):
+    write_study(tmp_path, survey=SURVEY_HEADER)
+    study = load(tmp_path)
+    assert study.survey is not None and study.survey.empty
+    assert any(w.startswith("survey.csv: has no rows") for w in study.warnings)
 
 
 @pytest.mark.parametrize("column,bad", [("video_s", "abc"), ("sensor_s", "inf"),

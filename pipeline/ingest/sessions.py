@@ -9,6 +9,8 @@ twice (clocks go back) cannot be placed and is refused, naming the row.
 
 from __future__ import annotations
 
+from datetime import datetime
+
 import numpy as np
 import pandas as pd
 
@@ -31,8 +33,8 @@ def parse_times(text: pd.Series, timezone: str) -> tuple[pd.Series, np.ndarray, 
     """Parse ISO 8601 date-times to UTC; naive ones are read in ``timezone``.
 
     Returns tz-aware UTC timestamps (NaT where not parsed), a reason per row ('' parsed,
-    'format' not ISO 8601, 'nonexistent' or 'ambiguous' in the zone) and a mask of the
-    values that had no UTC offset.
+    'format' not ISO 8601, 'range' outside the years pandas holds, 'nonexistent' or
+    'ambiguous' in the zone) and a mask of the values that had no UTC offset.
     """
     parts = text.str.replace(",", ".", regex=False).str.extract(f"^(?P<all>{ISO_DATETIME})$")
     shaped = parts["all"].notna().to_numpy()
@@ -58,6 +60,12 @@ def parse_times(text: pd.Series, timezone: str) -> tuple[pd.Series, np.ndarray, 
         reason[idx] = r
         out.iloc[idx] = strict.tz_convert("UTC")
     reason[out.isna().to_numpy() & (reason == "")] = "format"
+    for row in np.flatnonzero(shaped & (reason == "format")):
+        try:  # a real date-time pandas cannot hold (before 1677 or after 2262)?
+            datetime.fromisoformat(values.iloc[row])
+        except ValueError:
+            continue
+        reason[row] = "range"
     return out, reason, naive
 
 
@@ -71,6 +79,9 @@ def _report_times(table: CsvTable, column: str, reason: np.ndarray, timezone: st
            "is not an ISO 8601 date-time",
            hint=f"e.g. 2026-03-01T19:30:00+01:00, or 2026-03-01 19:30:00 read in "
            f"[study] timezone {timezone!r}")
+    report(table, column, reason == "range", problems,
+           f"is outside the years screenweave handles ({pd.Timestamp.min.year + 1} to "
+           f"{pd.Timestamp.max.year - 1})", hint="check the year")
     report(table, column, reason == "nonexistent", problems,
            f"does not exist in time zone {timezone!r}: the clocks skip it (daylight-saving "
            "change)", hint="give the time with its UTC offset, e.g. +02:00")

@@ -58,6 +58,14 @@ def test_start_not_iso8601_is_refused(tmp_path, bad):
                  says="not an ISO 8601 date-time")
 
 
+@pytest.mark.parametrize("bad", ["9999-12-31T23:59:59Z", "1066-10-14 09:00"])
+def test_date_outside_the_handled_years_is_refused_as_such(tmp_path, bad):
+    _study(tmp_path, "p01,s1,2026-03-01T19:00:00Z,2026-03-01T19:00:20Z",
+           f"p02,s1,{bad},2026-03-01T19:00:20Z")
+    assert_names(refusal(tmp_path), "sessions.csv", 3, "start", bad,
+                 says="outside the years screenweave handles (1678 to 2261)")
+
+
 def test_offset_aware_times_are_read_as_given():
     from pipeline.ingest.sessions import parse_times
 

@@ -37,11 +37,11 @@ from pipeline.models.fdr import FDR_METHODS, FDR_REFERENCES, adjust_p
 from pipeline.models.guards import CohortPlan, plan_cohorts, too_few_participants
 from pipeline.models.mixed import DF_METHODS, DF_REFERENCES, FitResult, fit_mixed
 from pipeline.models.summary import disagreement, row_sentence
-from pipeline.models.survey import SURVEY_METHODS, compare_survey
+from pipeline.models.survey import SURVEY_METHODS, compare_survey, survey_methods
 from pipeline.types import STATES
 
 __all__ = ["COMPARISON_COLUMNS", "ModelResults", "compare", "compare_survey",
-           "model_session_outcome", "switch_rate_model", "fit_mixed"]
+           "model_session_outcome", "switch_rate_model", "fit_mixed", "survey_methods"]
 
 #: Columns of models/comparisons.csv: CONTRACT §3, then the additions.
 COMPARISON_COLUMNS = ["outcome", "model", "term", "estimate", "std_error", "ci_low",
@@ -345,7 +345,6 @@ def _state_models(states: pd.DataFrame, ctx: _Context) -> list[pd.DataFrame]:
         for outcome in m.state_outcomes:
             note = "not fitted: metrics/states.csv has no rows"
             rows.append(_skipped_row(outcome, MIXED, "identity", note, None))
-            ctx.summary.append(f"{outcome}: {note}")
         return rows
     st = states[states["state"].astype(str).isin(m.states)].copy()
     st["state"] = st["state"].astype(str)
@@ -353,7 +352,6 @@ def _state_models(states: pd.DataFrame, ctx: _Context) -> list[pd.DataFrame]:
         if outcome not in st.columns:
             note = f"not fitted: metrics/states.csv has no {outcome} column"
             rows.append(_skipped_row(outcome, MIXED, "identity", note, None))
-            ctx.summary.append(f"{outcome}: {note}")
             continue
         d = st.copy()
         d["y"] = pd.to_numeric(d[outcome], errors="coerce")
@@ -365,7 +363,6 @@ def _state_models(states: pd.DataFrame, ctx: _Context) -> list[pd.DataFrame]:
             note = (f"not fitted: no {outcome} values in state(s) {', '.join(lacking)} "
                     "(too little valid time in that state?)")
             rows.append(_skipped_row(outcome, MIXED, "identity", note, d))
-            ctx.summary.append(f"{outcome}: {note}")
             continue
         r, fit = model_session_outcome(d, outcome, cohorts=plan.cohorts,
                                        reference=plan.reference, covariates=ctx.covariates,
@@ -465,7 +462,6 @@ def compare(sessions: pd.DataFrame, states: pd.DataFrame, groups: pd.DataFrame,
     table.loc[family, "p_fdr"] = adjust_p(table.loc[family, "p_value"].to_numpy(),
                                           m.fdr_method)
     lines.extend(_sentences(table, ctx))
-    lines.extend(ctx.checks)
     if ctx.offset_used:
         methods["zero_count_offset"] = (
             f"sessions with zero switches: log((switches + {m.zero_count_offset:g}) / "
@@ -501,6 +497,8 @@ def _sentences(table: pd.DataFrame, ctx: _Context) -> list[str]:
             out.append(text)
         if note:
             out.append(f"{outcome} ({label}): note: {note}")
+        if model == m.count_method:
+            out.extend(ctx.checks)
     return out
 
 

@@ -103,6 +103,14 @@ SURVEY_REFERENCES: dict[str, str] = {
 }
 
 
+def survey_methods(method: str = "mann_whitney", fdr_method: str = "bh") -> dict[str, str]:
+    """Method text (with references) of the survey comparison, for the methods section."""
+    from pipeline.models.fdr import FDR_REFERENCES
+
+    return {"survey": f"{SURVEY_REFERENCES[method]}; each cohort against the reference "
+            f"cohort; false discovery rate across items by {FDR_REFERENCES[fdr_method]}"}
+
+
 def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: float = 0.05,
                    *, method: str = "mann_whitney", reference: str | None = None,
                    items: list[str] | None = None, min_participants: int = 3,

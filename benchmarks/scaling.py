@@ -1,0 +1,156 @@
+"""Scaling benchmark: the whole `screenweave run` at three study sizes.
+
+For each size a reference study is made by `screenweave synth` (4-hour sessions at
+32 Hz, artifacts and clock drift on). Measured, each in a fresh subprocess:
+
+* wall time and throughput (participant-hours per second) of `run --workers 1` and
+  `run --workers 2` (the per-session cache is bypassed with --fresh);
+* peak resident memory of the whole process tree (the runner and its workers),
+  sampled every 50 ms with psutil;
+* the peer baseline a researcher would otherwise script: NeuroKit2's
+  ``eda_process`` on the EDA channel of every recording of the study (EDA
+  processing alone, no alignment, metrics, models or report).
+
+Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
+
+    .venv/bin/python benchmarks/scaling.py            # sizes 12, 40, 120 sessions
+    .venv/bin/python benchmarks/scaling.py --quick    # 4 and 8 sessions, for a smoke run
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import psutil
+
+ROOT = Path(__file__).resolve().parent.parent
+BIN = Path(sys.executable).parent
+RESULTS = ROOT / "benchmarks" / "results"
+
+#: (participants per cohort, sessions per participant): 2 cohorts each
+SIZES = {"small": (3, 2), "medium": (10, 2), "large": (30, 2)}
+QUICK = {"small": (1, 2), "medium": (2, 2)}
+
+
+def measure(cmd: list[str], env: dict | None = None) -> dict:
+    """Run a command; return wall seconds and the peak RSS of its process tree."""
+    start = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, env=env)
+    root = psutil.Process(proc.pid)
+    peak = 0
+    while proc.poll() is None:
+        try:
+            procs = [root] + root.children(recursive=True)
+            rss = 0
+            for p in procs:
+                try:
+                    rss += p.memory_info().rss
+                except psutil.NoSuchProcess:
+                    pass
+            peak = max(peak, rss)
+        except psutil.NoSuchProcess:
+            pass
+        time.sleep(0.05)
+    out = proc.stdout.read().decode(errors="replace")
+    wall = time.perf_counter() - start
+    if proc.returncode != 0:
+        raise SystemExit(f"command failed ({proc.returncode}): {' '.join(cmd)}\n{out}")
+    return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "output": out[-2000:]}
+
+
+NK_SCRIPT = r"""
+import sys, time, warnings
+from pathlib import Path
+import numpy as np, pandas as pd, neurokit2 as nk
+warnings.filterwarnings("ignore")
+files = sorted(Path(sys.argv[1]).glob("*.parquet"))
+t0 = time.perf_counter()
+for f in files:
+    d = pd.read_parquet(f, columns=["time_s", "eda_us"])
+    fs = 1.0 / float(np.median(np.diff(d["time_s"].to_numpy())))
+    eda = d["eda_us"].to_numpy(dtype=float)
+    eda = pd.Series(eda).interpolate(limit_direction="both").to_numpy()
+    nk.eda_process(eda, sampling_rate=int(round(fs)))
+print(time.perf_counter() - t0)
+"""
+
+
+def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
+               work: Path) -> dict:
+    study = work / f"study_{name}"
+    synth = [str(BIN / "screenweave"), "synth", str(study), "--participants-per-cohort",
+             str(ppc), "--sessions", str(sessions), "--hours", str(hours), "--rate-hz",
+             str(rate), "--seed", "11", "--force"]
+    subprocess.run(synth, check=True, stdout=subprocess.DEVNULL)
+    import pandas as pd
+
+    table = pd.read_csv(study / "sessions.csv")
+    n_sessions = len(table)
+    span = (pd.to_datetime(table["end"], utc=True) - pd.to_datetime(table["start"], utc=True))
+    participant_hours = float(span.dt.total_seconds().sum() / 3600)
+    row = {"size": name, "sessions": n_sessions, "participant_hours": participant_hours,
+           "rate_hz": rate, "study_mb": sum(p.stat().st_size for p in study.rglob("*")
+                                           if p.is_file()) / 2**20}
+    for workers in (1, 2):
+        out = work / f"out_{name}_{workers}"
+        m = measure([str(BIN / "screenweave"), "run", str(study), "--out", str(out),
+                     "--workers", str(workers), "--fresh", "--quiet", "--no-report"])
+        row[f"wall_s_workers{workers}"] = m["wall_s"]
+        row[f"peak_rss_mb_workers{workers}"] = m["peak_rss_mb"]
+        row[f"participant_hours_per_s_workers{workers}"] = participant_hours / m["wall_s"]
+    row["speedup_2_workers"] = row["wall_s_workers1"] / row["wall_s_workers2"]
+    nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals")])
+    row["neurokit2_eda_process_s"] = float(nk["output"].strip().splitlines()[-1])
+    row["run_vs_neurokit2_time"] = row["wall_s_workers2"] / row["neurokit2_eda_process_s"]
+    return row
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="tiny sizes, for a smoke run")
+    ap.add_argument("--hours", type=float, default=4.0)
+    ap.add_argument("--rate-hz", type=float, default=32.0)
+    ap.add_argument("--keep", type=Path, default=None, help="work folder to keep")
+    args = ap.parse_args()
+    sizes = QUICK if args.quick else SIZES
+    hours = 0.5 if args.quick else args.hours
+    work = args.keep or Path(tempfile.mkdtemp(prefix="screenweave-scaling-"))
+    work.mkdir(parents=True, exist_ok=True)
+    rows = []
+    for name, (ppc, sessions) in sizes.items():
+        print(f"== {name}: {2 * ppc * sessions} sessions of {hours} h", flush=True)
+        rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work))
+        print(json.dumps(rows[-1], indent=1), flush=True)
+    result = {
+        "machine": {"cores": os.cpu_count(), "memory_gb": psutil.virtual_memory().total / 2**30,
+                    "python": sys.version.split()[0]},
+        "rows": rows,
+        "rss_growth_smallest_to_largest_workers2": rows[-1]["peak_rss_mb_workers2"]
+        / rows[0]["peak_rss_mb_workers2"],
+    }
+    RESULTS.mkdir(parents=True, exist_ok=True)
+    target = RESULTS / ("scaling_quick.json" if args.quick else "scaling.json")
+    target.write_text(json.dumps(result, indent=2) + "\n")
+    print("\n| size | sessions | participant-hours | workers 1 (s) | workers 2 (s) | speedup | "
+          "participant-h/s (2 workers) | peak RSS 2 workers (MB) | NeuroKit2 EDA alone (s) | "
+          "run / NeuroKit2 |")
+    print("|---|---|---|---|---|---|---|---|---|---|")
+    for r in rows:
+        print(f"| {r['size']} | {r['sessions']} | {r['participant_hours']:.0f} | "
+              f"{r['wall_s_workers1']:.1f} | {r['wall_s_workers2']:.1f} | "
+              f"{r['speedup_2_workers']:.2f} | {r['participant_hours_per_s_workers2']:.2f} | "
+              f"{r['peak_rss_mb_workers2']:.0f} | {r['neurokit2_eda_process_s']:.1f} | "
+              f"{r['run_vs_neurokit2_time']:.3f} |")
+    print(f"\nRSS growth smallest -> largest (2 workers): "
+          f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x; written {target}")
+
+
+if __name__ == "__main__":
+    main()

@@ -339,10 +339,17 @@ def switch_locked_summary(per_session: pd.DataFrame, roster: pd.DataFrame, *,
         if not np.isfinite(r["p_value"]):
             lines.append(f"switch-locked arousal, {who}: {r['note']}")
             continue
+        if r["scope"] == "cohort_difference":
+            verdict = ("the pre-switch slope does not clearly differ"
+                       if r["direction"] == "no clear difference"
+                       else f"arousal shows a {r['direction']} before switches")
+        else:
+            verdict = ("arousal shows no clear change" if r["direction"] == "no clear change"
+                       else f"arousal {r['direction']}")
         lines.append(
             f"switch-locked arousal, {who} ({int(r['n_participants'])} participants): over the "
-            f"{pre_s} s before a switch, relative to pseudo-switches, arousal "
-            f"{r['direction']}: slope {r['slope_z_per_s']:+.4f} z/s ({pct} "
+            f"{pre_s} s before a switch, relative to pseudo-switches, {verdict}: "
+            f"slope {r['slope_z_per_s']:+.4f} z/s ({pct} "
             f"{r['ci_low']:+.4f} to {r['ci_high']:+.4f}), change {r['change_z']:+.3f} z, "
             f"p = {r['p_value']:.3g}"
             + (f", Wilcoxon p = {r['wilcoxon_p']:.3g}" if np.isfinite(r["wilcoxon_p"]) else ""))

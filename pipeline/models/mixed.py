@@ -164,7 +164,7 @@ def _empty_terms(names: list[str]) -> pd.DataFrame:
 def _warning_text(caught: list[warnings.WarningMessage]) -> list[str]:
     keep = []
     for w in caught:
-        text = str(w.message).split("\n")[0].strip()
+        text = str(w.message).split("\n")[0].strip().rstrip(".")
         if text.startswith("Retrying MixedLM") or text.startswith("Check mle_retvals"):
             continue
         if text and text not in keep:

@@ -14,6 +14,7 @@ The modules, one per file of the study folder: :mod:`.csvfile` (robust CSV readi
 
 from __future__ import annotations
 
+import difflib
 from pathlib import Path
 
 import pandas as pd
@@ -133,6 +134,15 @@ def load_study(folder: Path, cfg: Config) -> Study:
                         f"({len(seen)}: {', '.join(sorted(seen)) or 'none'})")
     else:
         platform_groups = declared
+
+    primary = cfg.coding.primary_coder
+    coders = sorted(set(media_log["coder"]))
+    if primary is not None and primary not in coders:
+        close = difflib.get_close_matches(primary, coders, n=1)
+        warnings.append(f"[coding] primary_coder = {primary!r} codes no session"
+                        + (f"; did you mean {close[0]!r}?" if close else "")
+                        + f" (coders in the media log: {', '.join(repr(c) for c in coders)}); "
+                        "the first coder in sorted order is used")
 
     keys = [SessionKey(p, s) for p, s in
             sessions[["participant_id", "session_id"]].itertuples(index=False)]

@@ -153,6 +153,15 @@ def test_coder_column_wins_over_the_file_stem(tmp_path):
     assert sorted(load(tmp_path).media_log["coder"].unique()) == ["ana", "ben"]
 
 
+def test_primary_coder_that_codes_nothing_is_a_warning(tmp_path):
+    toml = '[study]\ntimezone = "UTC"\n[coding]\nprimary_coder = "anna"\n'
+    write_study(tmp_path, toml=toml, media_log_files={"ana.csv": second_log(),
+                                                      "ben.csv": second_log()})
+    warnings = load(tmp_path).warnings
+    assert any("primary_coder = 'anna' codes no session; did you mean 'ana'?" in w
+               for w in warnings)
+
+
 def test_single_file_in_folder_without_coder_gives_empty_coder(tmp_path):
     write_study(tmp_path, media_log_files={"log.csv": second_log()})
     assert load(tmp_path).media_log["coder"].unique().tolist() == [""]

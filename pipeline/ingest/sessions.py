@@ -145,7 +145,10 @@ def validate_sessions(table: CsvTable, known_participants: set[str], cfg: StudyS
         "duration_s": duration_s,
     })
     for name in frame.columns:
-        if name not in REQUIRED:
+        if name == "duration_s":
+            warnings.append(f"{table.label}: column duration_s is computed from start and end; "
+                            "the file's values are not used")
+        elif name not in REQUIRED:
             out[name] = frame[name].where(frame[name] != "", None)
     naive = int((start_naive & ok).sum() + (end_naive & ok).sum())
     if naive and timezone == "UTC":

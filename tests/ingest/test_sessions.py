@@ -153,3 +153,13 @@ def test_session_over_a_day_is_a_warning(tmp_path):
            "p02,s1,2026-03-01T19:00:00Z,2026-03-03T19:00:20Z")
     warnings = load(tmp_path).warnings
     assert any("p02/s1 lasts 48.0 hours" in w for w in warnings)
+
+
+def test_extra_columns_are_kept_but_duration_is_always_computed(tmp_path):
+    write_study(tmp_path, sessions="participant_id,session_id,start,end,duration_s,room\n"
+                "p01,s1,2026-03-01T19:00:00Z,2026-03-01T19:00:20Z,999,den\n"
+                "p02,s1,2026-03-01T19:00:00Z,2026-03-01T19:00:20Z,,\n")
+    study = load(tmp_path)
+    assert study.sessions["duration_s"].tolist() == [20, 20]
+    assert study.sessions["room"].iloc[0] == "den" and study.sessions["room"].isna().iloc[1]
+    assert any("duration_s is computed" in w for w in study.warnings)

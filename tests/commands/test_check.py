@@ -70,6 +70,16 @@ def test_refused_study_exits_2_without_traceback(tmp_path):
     assert isinstance(result.exception, SystemExit)
 
 
+def test_many_problems_of_one_file_are_capped_with_a_count(tmp_path):
+    bad = "\n".join(f"p01,s1,-{i},tv,tv" for i in range(1, 26))
+    write_study(tmp_path, media_log="participant_id,session_id,second,in_view,attended\n"
+                + bad + "\n")
+    result = _check(tmp_path)
+    assert result.exit_code == 2
+    assert result.output.count("column 'second'") == 20  # errors.MAX_PROBLEMS_SHOWN
+    assert "media_log.csv: ... and 5 more problem(s) of this file not shown" in result.output
+
+
 def test_debug_shows_the_error_itself(tmp_path):
     write_study(tmp_path, roster="participant_id,cohort\np 1,alpha\n")
     result = runner.invoke(app, ["--debug", "check", str(tmp_path)])

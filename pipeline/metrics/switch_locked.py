@@ -30,9 +30,10 @@ from scipy import stats
 SESSION_COLUMNS = ["kind", "lag_s", "n_events", "n_valid", "arousal_mean_z"]
 
 TRAJECTORY_COLUMNS = ["level", "participant_id", "cohort", "lag_s", "arousal_switch_z",
-                      "arousal_pseudo_z", "arousal_difference_z", "difference_ci_low",
-                      "difference_ci_high", "n_participants", "n_switches",
-                      "n_switch_values", "n_pseudo_values"]
+                      "arousal_pseudo_z", "arousal_difference_z", "switch_ci_low",
+                      "switch_ci_high", "baseline_ci_low", "baseline_ci_high",
+                      "difference_ci_low", "difference_ci_high", "n_participants",
+                      "n_switches", "n_switch_values", "n_pseudo_values"]
 
 TEST_COLUMNS = ["scope", "cohort", "reference", "n_participants", "n_left_out",
                 "slope_z_per_s", "ci_low", "ci_high", "change_z", "statistic", "df",
@@ -200,7 +201,9 @@ def switch_locked_summary(per_session: pd.DataFrame, roster: pd.DataFrame, *,
     Returns
     -------
     (trajectories, test, lines): trajectories with :data:`TRAJECTORY_COLUMNS` (level
-    ``participant`` and ``cohort``), the test with :data:`TEST_COLUMNS` (scope ``all``,
+    ``participant``: one participant's switch-locked, pseudo-switch (baseline) and
+    difference trajectories pooled over their sessions; level ``cohort``: their means
+    across the cohort's participants with Student-t intervals), the test with :data:`TEST_COLUMNS` (scope ``all``,
     one row per cohort, one per cohort against the reference), readable lines.
 
     References
@@ -251,22 +254,30 @@ def switch_locked_summary(per_session: pd.DataFrame, roster: pd.DataFrame, *,
                      "the roster left out")
         part = part[part["cohort"].notna()]
 
-    # cohort trajectories: participants as the unit
+    # cohort trajectories: participants as the unit (Student-t intervals across them)
+    for col in ("switch_ci_low", "switch_ci_high", "baseline_ci_low", "baseline_ci_high"):
+        part[col] = np.nan
+
+    def mean_ci(values: pd.Series) -> tuple[float, float, float, int]:
+        v = values.dropna().to_numpy(float)
+        n = len(v)
+        if n == 0:
+            return np.nan, np.nan, np.nan, 0
+        if n < 2:
+            return float(v.mean()), np.nan, np.nan, n
+        half = stats.t.ppf(0.5 + confidence / 2, n - 1) * v.std(ddof=1) / np.sqrt(n)
+        return float(v.mean()), float(v.mean() - half), float(v.mean() + half), n
+
     crit_rows = []
     for (cohort, lag), g in part.groupby(["cohort", "lag_s"]):
-        diff = g["arousal_difference_z"].dropna()
-        n = len(diff)
-        if n >= 2:
-            half = stats.t.ppf(0.5 + confidence / 2, n - 1) * diff.std(ddof=1) / np.sqrt(n)
-        else:
-            half = np.nan
+        sw, sw_lo, sw_hi, _ = mean_ci(g["arousal_switch_z"])
+        ps, ps_lo, ps_hi, _ = mean_ci(g["arousal_pseudo_z"])
+        df_, df_lo, df_hi, n = mean_ci(g["arousal_difference_z"])
         crit_rows.append({
             "level": "cohort", "participant_id": pd.NA, "cohort": cohort, "lag_s": lag,
-            "arousal_switch_z": g["arousal_switch_z"].mean(),
-            "arousal_pseudo_z": g["arousal_pseudo_z"].mean(),
-            "arousal_difference_z": diff.mean() if n else np.nan,
-            "difference_ci_low": diff.mean() - half if n else np.nan,
-            "difference_ci_high": diff.mean() + half if n else np.nan,
+            "arousal_switch_z": sw, "arousal_pseudo_z": ps, "arousal_difference_z": df_,
+            "switch_ci_low": sw_lo, "switch_ci_high": sw_hi, "baseline_ci_low": ps_lo,
+            "baseline_ci_high": ps_hi, "difference_ci_low": df_lo, "difference_ci_high": df_hi,
             "n_participants": n, "n_switches": int(g["n_switches"].sum()),
             "n_switch_values": int(g["n_switch_values"].sum()),
             "n_pseudo_values": int(g["n_pseudo_values"].sum())})

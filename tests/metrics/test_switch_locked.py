@@ -131,3 +131,21 @@ def test_empty_input_gives_a_line_not_a_crash():
     traj, test, lines = switch_locked_summary(pd.DataFrame(), pd.DataFrame(
         {"participant_id": [], "cohort": []}))
     assert traj.empty and test.empty and "no sessions" in lines[0]
+
+
+def test_cohort_intervals_are_student_t_across_participants():
+    # Student (1908): mean +/- t_{n-1} s / sqrt(n) of the participant values at one lag
+    from scipy import stats
+
+    per, roster = study(0.5, 0.5, n=4)
+    traj, _, _ = switch_locked_summary(per, roster)
+    parts = traj[(traj.level == "participant") & (traj.cohort == "b") & (traj.lag_s == -3)]
+    row = traj[(traj.level == "cohort") & (traj.cohort == "b") & (traj.lag_s == -3)].iloc[0]
+    for value, lo, hi in (("arousal_switch_z", "switch_ci_low", "switch_ci_high"),
+                          ("arousal_pseudo_z", "baseline_ci_low", "baseline_ci_high"),
+                          ("arousal_difference_z", "difference_ci_low", "difference_ci_high")):
+        v = parts[value].to_numpy()
+        half = stats.t.ppf(0.975, len(v) - 1) * v.std(ddof=1) / np.sqrt(len(v))
+        assert row[value] == pytest.approx(v.mean())
+        assert (row[lo], row[hi]) == pytest.approx((v.mean() - half, v.mean() + half))
+    assert row.n_participants == 4

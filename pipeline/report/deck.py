@@ -21,7 +21,8 @@ from pipeline.report.charts import CHARTS
 from pipeline.report.export import ChartFiles, png_size
 from pipeline.report.run_files import RunFiles
 
-SLIDE_W, SLIDE_H = Inches(13.333), Inches(7.5)
+SLIDE_H = Inches(7.5)
+SLIDE_W = Emu(SLIDE_H * 16 // 9)  # exactly 16:9 (13.333 in)
 MARGIN = Inches(0.5)
 INK = RGBColor(0x1A, 0x1A, 0x1A)
 MUTED = RGBColor(0x4D, 0x4D, 0x4D)

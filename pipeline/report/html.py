@@ -20,7 +20,7 @@ from pipeline import __version__
 from pipeline.report import findings as F
 from pipeline.report import numbers as fmt
 from pipeline.report.charts import CHARTS
-from pipeline.report.export import CSP, EMBED_JS, ChartFiles, script_json
+from pipeline.report.export import EMBED_JS, ChartFiles, csp, script_json
 from pipeline.report.methods_text import Methods
 from pipeline.report.run_files import TABLE_PATHS, RunFiles
 
@@ -224,7 +224,7 @@ def render_report(run: RunFiles, charts: list[ChartFiles], omitted: dict[str, st
 <html lang="en">
 <head>
 <meta charset="utf-8">
-<meta http-equiv="Content-Security-Policy" content="{CSP}">
+<meta http-equiv="Content-Security-Policy" content="{csp(bundle, EMBED_JS)}">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <meta name="generator" content="screenweave {escape(__version__)}">
 <title>{study} — findings</title>

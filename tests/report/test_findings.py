@@ -1,0 +1,79 @@
+"""Headline findings read from comparisons.csv: terms, ratios, wording, rounding."""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+import pytest
+
+from pipeline.report import findings as F
+from pipeline.report import numbers as fmt
+
+
+def _row(**kw):
+    base = {"outcome": "switches_per_hour", "model": "mixed", "term": "cohort[T.teen]",
+            "estimate": math.log(1.5), "std_error": 0.1, "ci_low": math.log(1.2),
+            "ci_high": math.log(1.9), "p_value": 0.004, "p_fdr": 0.012, "n_participants": 20,
+            "n_obs": 80, "scale": "log", "converged": True, "note": ""}
+    base.update(kw)
+    return base
+
+
+@pytest.mark.parametrize("term, parts", [
+    ("cohort[T.teen]", [("cohort", "teen")]),
+    ("C(cohort)[T.teen]", [("cohort", "teen")]),
+    ("C(cohort, Treatment('adult'))[T.teen]", [("cohort", "teen")]),
+    ("cohort=teen", [("cohort", "teen")]),
+    ("state[T.multi]:cohort[T.teen]", [("state", "multi"), ("cohort", "teen")]),
+    ("birth_year", [("birth_year", None)]),
+])
+def test_term_parts_read_treatment_coding(term, parts):
+    # patsy's treatment-coding names, e.g. "C(x)[T.b]" (patsy documentation, common practice)
+    assert F.term_parts(term) == parts
+
+
+def test_log_scale_rows_are_shown_as_ratios_and_intercepts_are_dropped():
+    comp = pd.DataFrame([_row(term="Intercept"), _row()])
+    (e,) = F.effects(comp)
+    # exp of a log rate difference is the rate ratio (Cameron & Trivedi, "Regression
+    # Analysis of Count Data"; common practice)
+    assert e.shown == pytest.approx(1.5) and e.shown_low == pytest.approx(1.2)
+    assert e.claim("adult") == \
+        "Switches per multi-platform hour: teen vs adult, rate ratio 1.50"
+    assert e.statistics().startswith("95% CI 1.20–1.90; p = 0.004; FDR-adjusted p = 0.012")
+    assert e.significant(0.05) and not e.significant(0.01)
+
+
+def test_identity_rows_are_differences_and_negative_bounds_read_clearly():
+    comp = pd.DataFrame([_row(outcome="arousal_range", term="state[T.multi]", estimate=-0.21,
+                              ci_low=-0.37, ci_high=-0.05, scale="identity",
+                              converged=False, note="boundary fit")])
+    (e,) = F.effects(comp)
+    assert e.number() == "difference -0.21"
+    assert "95% CI -0.37 to -0.05" in e.statistics()
+    s = e.sentence("adult", 0.05)
+    assert "did not converge" in s and "boundary fit" in s
+
+
+def test_primary_effect_is_the_switch_rate_cohort_term_with_smallest_p():
+    comp = pd.DataFrame([_row(term="cohort[T.kids]", p_value=0.3, p_fdr=0.3), _row(),
+                         _row(outcome="compression_ratio", p_value=1e-6, p_fdr=1e-6,
+                              scale="identity")])
+    effs = F.effects(comp)
+    assert F.primary_effect(effs).term == "cohort[T.teen]"
+    assert [e.outcome for e in F.ranked(effs)][:2] == ["switches_per_hour"] * 2
+    assert F.strongest(effs).outcome == "compression_ratio"
+
+
+@pytest.mark.parametrize("value, text", [(0.0004, "p < 0.001"), (0.0123, "p = 0.012"),
+                                         (float("nan"), "p n/a")])
+def test_p_values(value, text):
+    assert fmt.p_value(value) == text
+
+
+def test_number_formats():
+    assert fmt.num(1.4049) == "1.40" and fmt.num(0.004) == "0.004"
+    assert fmt.short(2.0) == "2" and fmt.short(12.34) == "12.3"
+    assert fmt.pct(0.6449) == "64%" and fmt.auto(2447.2) == "2447"
+    assert fmt.interval(1.1, 1.83) == "1.10–1.83"

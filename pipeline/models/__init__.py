@@ -84,12 +84,17 @@ def _fit_rows(outcome: str, model: str, fit: FitResult, scale: str,
                          fit.variances.get("residual", np.nan)],
         })
         t = pd.concat([t, var], ignore_index=True)
+    elif fit.fitted and "exchangeable_correlation" in fit.variances:
+        corr = pd.DataFrame({"term": ["corr(within participant)"],
+                             "estimate": [fit.variances["exchangeable_correlation"]]})
+        t = pd.concat([t, corr], ignore_index=True)
     t["outcome"] = outcome
     t["model"] = model
     t["p_fdr"] = np.nan
     t["n_participants"] = fit.n_groups
     t["n_obs"] = fit.n_obs
-    t["scale"] = np.where(t["term"].str.startswith("var("), "variance", scale)
+    t["scale"] = np.select([t["term"].str.startswith("var("), t["term"].str.startswith("corr(")],
+                           ["variance", "correlation"], scale)
     t["converged"] = bool(fit.converged)
     t["note"] = "; ".join(notes)
     return t[COMPARISON_COLUMNS]

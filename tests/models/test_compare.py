@@ -191,3 +191,14 @@ def test_methods_name_their_references(full):
     assert "Benjamini & Hochberg (1995)" in res.methods["fdr"]
     assert "Bates" in res.methods["mixed_model"]
     assert "Mancl & DeRouen" in res.methods["count_model"]
+
+
+def test_variance_components_and_working_correlation_are_rows(full):
+    c = full.comparisons
+    mixed = c[(c.outcome == "switches_per_hour") & (c.model == "mixed_reml")]
+    var = mixed[mixed.scale == "variance"].set_index("term").estimate
+    assert set(var.index) == {"var(participant)", "var(residual)"} and (var > 0).all()
+    gee = c[c.model == "poisson_gee"]
+    corr = gee[gee.term == "corr(within participant)"]
+    assert len(corr) == 1 and corr.scale.iloc[0] == "correlation"
+    assert -1 <= corr.estimate.iloc[0] <= 1

@@ -7,6 +7,8 @@ Entry point of the runner::
     results.comparisons  -> OUT/models/comparisons.csv
     results.summary      -> readable lines (effects back-transformed, guard messages)
     results.methods      -> method key -> text with references, for the methods section
+    results.variances    -> OUT/models/variance_components.csv (participant and residual
+                            variance per mixed model, the count model's correlation)
 
 * Session outcomes (``[models] session_outcomes``): ``outcome ~ cohort (+ covariates)``
   with a random intercept per participant, REML; log-scale outcomes give ratios.
@@ -48,6 +50,10 @@ COMPARISON_COLUMNS = ["outcome", "model", "term", "estimate", "std_error", "ci_l
                       "ci_high", "p_value", "p_fdr", "n_participants", "n_obs", "scale",
                       "converged", "note", "df"]
 
+#: Columns of ModelResults.variances (models/variance_components.csv).
+VARIANCE_COLUMNS = ["outcome", "model", "component", "estimate", "scale", "n_participants",
+                    "n_obs", "converged"]
+
 MIXED = "mixed_reml"
 
 
@@ -58,6 +64,10 @@ class ModelResults:
     comparisons: pd.DataFrame
     summary: list[str]
     methods: dict[str, str] = field(default_factory=dict)
+    #: variance components of each mixed model (participant and residual variance, the
+    #: participant share) and the count model's working correlation; one row each
+    variances: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(
+        columns=VARIANCE_COLUMNS))
 
 
 @dataclass
@@ -68,6 +78,7 @@ class _Context:
     cohorts: CohortSettings
     summary: list[str] = field(default_factory=list)
     checks: list[str] = field(default_factory=list)
+    variances: list[pd.DataFrame] = field(default_factory=list)
     optimisers: set[str] = field(default_factory=set)
     offset_used: bool = False
 
@@ -77,27 +88,33 @@ def _fit_rows(outcome: str, model: str, fit: FitResult, scale: str,
               extra_notes: list[str]) -> pd.DataFrame:
     notes = [*extra_notes, *fit.notes]
     t = fit.terms.copy()
-    if fit.fitted and model == MIXED:
-        var = pd.DataFrame({
-            "term": [f"var({k})" for k in ("participant", "residual")],
-            "estimate": [fit.variances.get("participant", np.nan),
-                         fit.variances.get("residual", np.nan)],
-        })
-        t = pd.concat([t, var], ignore_index=True)
-    elif fit.fitted and "exchangeable_correlation" in fit.variances:
-        corr = pd.DataFrame({"term": ["corr(within participant)"],
-                             "estimate": [fit.variances["exchangeable_correlation"]]})
-        t = pd.concat([t, corr], ignore_index=True)
     t["outcome"] = outcome
     t["model"] = model
     t["p_fdr"] = np.nan
     t["n_participants"] = fit.n_groups
     t["n_obs"] = fit.n_obs
-    t["scale"] = np.select([t["term"].str.startswith("var("), t["term"].str.startswith("corr(")],
-                           ["variance", "correlation"], scale)
+    t["scale"] = scale
     t["converged"] = bool(fit.converged)
     t["note"] = "; ".join(notes)
     return t[COMPARISON_COLUMNS]
+
+
+def _variance_rows(outcome: str, model: str, fit: FitResult, scale: str) -> pd.DataFrame:
+    """Variance components (mixed model) or the working correlation (GEE) of one fit."""
+    if not fit.fitted:
+        return pd.DataFrame(columns=VARIANCE_COLUMNS)
+    v = fit.variances
+    if "participant" in v:
+        total = v["participant"] + v["residual"]
+        rows = [("participant_variance", v["participant"]), ("residual_variance", v["residual"]),
+                ("participant_share", v["participant"] / total if total > 0 else np.nan)]
+    else:
+        rows = [(k, val) for k, val in v.items()]
+    return pd.DataFrame({"outcome": outcome, "model": model,
+                         "component": [r[0] for r in rows],
+                         "estimate": [float(r[1]) for r in rows], "scale": scale,
+                         "n_participants": fit.n_groups, "n_obs": fit.n_obs,
+                         "converged": bool(fit.converged)})[VARIANCE_COLUMNS]
 
 
 def _skipped_row(outcome: str, model: str, scale: str, note: str, data: pd.DataFrame | None
@@ -323,6 +340,7 @@ def _count_check(sessions: pd.DataFrame, ctx: _Context,
              d["participant_id"].to_numpy(), cov_type=m.gee_cov_type,
              confidence=m.confidence_level, df_method=m.df_method)
     rows = _fit_rows("switches", m.count_method, fit, "log", [])
+    ctx.variances.append(_variance_rows("switches", m.count_method, fit, "log"))
     if mixed_rows is not None:
         alpha = 1 - m.confidence_level
         mix = mixed_rows.set_index("term")
@@ -374,8 +392,9 @@ def _state_models(states: pd.DataFrame, ctx: _Context) -> list[pd.DataFrame]:
                                        log=False, models=m,
                                        min_participants=ctx.cohorts.min_participants,
                                        states=m.states)
-        if fit is not None and fit.optimiser:
-            ctx.optimisers.add(fit.optimiser)
+        if fit is not None:
+            ctx.optimisers.add(fit.optimiser or "")
+            ctx.variances.append(_variance_rows(outcome, MIXED, fit, "identity"))
         rows.append(r)
     return rows
 
@@ -452,8 +471,9 @@ def compare(sessions: pd.DataFrame, states: pd.DataFrame, groups: pd.DataFrame,
                 d, label, cohorts=plan.cohorts, reference=plan.reference,
                 covariates=ctx.covariates, log=scale == "log", models=m,
                 min_participants=c.min_participants, extra_notes=notes)
-            if fit is not None and fit.optimiser:
-                ctx.optimisers.add(fit.optimiser)
+            if fit is not None:
+                ctx.optimisers.add(fit.optimiser or "")
+                ctx.variances.append(_variance_rows(label, MIXED, fit, scale))
             rows.append(r)
             if label == "switches_per_hour":
                 switch_rows = r
@@ -476,7 +496,10 @@ def compare(sessions: pd.DataFrame, states: pd.DataFrame, groups: pd.DataFrame,
         methods["optimiser"] = ("where the gradient optimiser failed, the REML fit was "
                                 "completed by Powell's derivative-free method (Powell 1964, "
                                 "Comput J 7:155-162)")
-    return ModelResults(table, lines, methods)
+    parts = [v for v in ctx.variances if len(v)]
+    variances = pd.concat(parts, ignore_index=True) if parts else \
+        pd.DataFrame(columns=VARIANCE_COLUMNS)
+    return ModelResults(table, lines, methods, variances)
 
 
 def _sentences(table: pd.DataFrame, ctx: _Context) -> list[str]:

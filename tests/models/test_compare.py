@@ -193,12 +193,16 @@ def test_methods_name_their_references(full):
     assert "Mancl & DeRouen" in res.methods["count_model"]
 
 
-def test_variance_components_and_working_correlation_are_rows(full):
-    c = full.comparisons
-    mixed = c[(c.outcome == "switches_per_hour") & (c.model == "mixed_reml")]
-    var = mixed[mixed.scale == "variance"].set_index("term").estimate
-    assert set(var.index) == {"var(participant)", "var(residual)"} and (var > 0).all()
-    gee = c[c.model == "poisson_gee"]
-    corr = gee[gee.term == "corr(within participant)"]
-    assert len(corr) == 1 and corr.scale.iloc[0] == "correlation"
-    assert -1 <= corr.estimate.iloc[0] <= 1
+def test_variance_components_and_working_correlation_are_in_their_own_table(full):
+    # comparisons.csv holds model terms only; variance components go to variances
+    assert not full.comparisons.term.str.startswith(("var(", "corr(")).any()
+    v = full.variances
+    mixed = v[(v.outcome == "switches_per_hour") & (v.model == "mixed_reml")] \
+        .set_index("component").estimate
+    assert set(mixed.index) == {"participant_variance", "residual_variance",
+                                "participant_share"}
+    share = mixed["participant_variance"] / (mixed["participant_variance"]
+                                             + mixed["residual_variance"])
+    assert mixed["participant_share"] == pytest.approx(share)
+    corr = v[(v.model == "poisson_gee")].set_index("component").estimate
+    assert -1 <= corr["exchangeable_correlation"] <= 1

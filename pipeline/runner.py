@@ -33,7 +33,7 @@ from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
 from pipeline.execution import Outcome, run_tasks
 from pipeline.ingest import load_study
-from pipeline.ingest.recordings import read_recording
+from pipeline.ingest import read_recording_checked
 from pipeline.metrics.arousal import add_arousal, arousal_source
 from pipeline.metrics.session import session_metrics
 from pipeline.outputs import OutputFolder, sha256_file
@@ -76,7 +76,8 @@ def prepare_session(task: PrepareTask) -> Prepared:
     notes: list[str] = []
     nbytes = 0
     if inputs.recording_path is not None:
-        rec = read_recording(inputs.recording_path, cfg.signals)
+        rec = read_recording_checked(inputs.recording_path, cfg.signals,
+                                     label=f"signals/{inputs.recording_path.name}")
         channels = sorted(rec.channels)
         notes.extend(rec.notes)
         nbytes = rec.nbytes

@@ -24,9 +24,6 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
-from scipy.optimize import linear_sum_assignment
-from scipy.sparse import coo_matrix
-from scipy.sparse.csgraph import connected_components
 
 from pipeline.errors import ConfigError
 
@@ -110,6 +107,12 @@ def match_optimal(cand: pd.DataFrame, n_a: int, n_b: int) -> pd.DataFrame:
         return cand[["ia", "ib"]].copy()
     ia = cand["ia"].to_numpy()
     ib = cand["ib"].to_numpy()
+    # imported here so that validating a configuration (which reads this module's
+    # registry) does not pay for scipy's start-up
+    from scipy.optimize import linear_sum_assignment
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
     graph = coo_matrix((np.ones(len(cand)), (ia, n_a + ib)), shape=(n_a + n_b, n_a + n_b))
     _, label = connected_components(graph, directed=False)
     comp = label[ia]

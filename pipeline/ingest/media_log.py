@@ -145,7 +145,7 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
     for cell in uniq:
         codes = _split_codes(cell)
         norm.append(";".join(codes))
-        reserved.append([c for c in codes if "+" in c])
+        reserved.append([c for c in codes if "+" in c or c.lower() == "none"])
         unknown.append(vocab.unknown(codes))
         vocab.seen.update(codes)
     norm_rows = np.asarray(norm, dtype=object)[inverse] if len(uniq) else np.zeros(0, object)
@@ -157,8 +157,9 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
         bad_codes |= rows
         if reserved[u]:
             report(table, "in_view", rows, problems,
-                   f"holds code {reserved[u][0]!r} with a '+', which is reserved for joining "
-                   "codes", hint="rename the platform code without '+' (e.g. 'tv_phone')")
+                   f"holds code {reserved[u][0]!r}, which is reserved ('+' joins codes in the "
+                   "fine state; 'none' names the state with nothing in view)",
+                   hint="rename the platform code (e.g. 'tv_phone', 'no_device')")
         else:
             report(table, "in_view", rows, problems,
                    f"holds code {unknown[u][0]!r}, which is not in the [platforms] vocabulary",
@@ -261,10 +262,12 @@ def _interval_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, c
     platform = frame["platform"]
     empty = (platform == "").to_numpy()
     report(table, "platform", empty, problems, "is empty: every interval names one platform")
-    reserved = platform.str.contains(r"[;+]", regex=True).to_numpy()
+    reserved = (platform.str.contains(r"[;+]", regex=True)
+                | (platform.str.lower() == "none")).to_numpy()
     report(table, "platform", reserved, problems,
-           "holds ';' or '+': an interval names one platform code, and these characters "
-           "are reserved", hint="one row per platform; rename codes holding '+'")
+           "is reserved: an interval names one platform code, ';' and '+' join codes and "
+           "'none' names the state with nothing in view",
+           hint="one row per platform; rename codes holding '+' or named 'none'")
     unknown_codes = set(vocab.unknown(sorted(set(platform[~empty & ~reserved]))))
     unknown = platform.isin(unknown_codes).to_numpy()
     for row in np.flatnonzero(unknown):

@@ -111,6 +111,14 @@ def test_code_with_plus_is_refused(tmp_path):
                  says="reserved")
 
 
+def test_code_named_none_is_refused(tmp_path):
+    # 'none' is the contract's name of the state with nothing in view (CONTRACT §2) and
+    # the agreement tables' category for "nothing attended": it cannot be a platform.
+    write_study(tmp_path, toml=NO_VOCAB, media_log=_log("p01,s1,0,none;tv,tv"))
+    assert_names(refusal(tmp_path), "media_log.csv", 2, "in_view", "none;tv",
+                 says="reserved")
+
+
 def test_without_vocabulary_every_code_seen_is_accepted_and_listed(tmp_path):
     write_study(tmp_path, toml=NO_VOCAB, media_log=_log("p01,s1,0,radio;tv,radio",
                                                         "p02,s1,0,zine,"))

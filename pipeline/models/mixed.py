@@ -204,7 +204,6 @@ def fit_mixed(
     models using lme4. J Stat Softw 67(1):1-48. (REML fit reproduced by the tests.)
     """
     from statsmodels.regression.mixed_linear_model import MixedLM
-    from statsmodels.tools.sm_exceptions import ConvergenceWarning  # noqa: F401
 
     y = np.asarray(y, dtype=float)
     groups = np.asarray(groups)

@@ -1,7 +1,6 @@
 """The models stage end to end on simulated study tables."""
 
 import numpy as np
-import pandas as pd
 import pytest
 from statsmodels.stats.multitest import multipletests
 

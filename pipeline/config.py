@@ -153,8 +153,8 @@ class EdaSettings(StrictModel):
         "cleans skin conductance (lowered to 0.8 x Nyquist for slow recordings)."
     )
     lowpass_order: int = Field(
-        4, ge=1, le=8, description="Order of that Butterworth low-pass (applied forwards and "
-        "backwards, so the effective order doubles)."
+        2, ge=1, le=8, description="Order of that Butterworth low-pass design (applied "
+        "forwards and backwards, so the effective order doubles)."
     )
     analysis_hz: float = Field(
         16.0, gt=0, description="Rate (Hz) at which decomposition and SCR scoring run, after "
@@ -194,8 +194,8 @@ class ConvexSettings(StrictModel):
                             "memory stays bounded on long recordings.")
     overlap_s: float = Field(60.0, ge=0, description="Context added on each side of a window "
                              "and discarded after solving (s).")
-    max_iterations: int = Field(3000, ge=10, description="Iteration limit of the bounded "
-                                "quasi-Newton solver per window.")
+    max_iterations: int = Field(100, ge=5, description="Iteration limit of the "
+                                "interior-point solver per window.")
 
 
 class DecompositionSettings(StrictModel):

@@ -1,7 +1,23 @@
 """Signals stage: one session's recording, cleaned and scored, on the sensor clock.
 
-Entry point: :func:`process_recording` (a pure function of a Recording and the
-``[signals]`` settings). The align stage then maps the result onto video seconds.
+Entry point: :func:`process_recording`, a pure function of a
+:class:`~pipeline.types.Recording` and the ``[signals]`` settings. The steps, each a
+published method or a declared rule:
+
+1. the recording is put on a uniform grid (:mod:`.grid`), never interpolating
+   across more than ``max_interp_s``;
+2. skin conductance is checked by the artifact rules (:mod:`.artifacts`): short
+   glitches are bridged, longer invalid stretches padded and masked;
+3. a zero-phase Butterworth low-pass cleans it (:mod:`.eda`);
+4. it is split into tonic and phasic components (:mod:`.decompose`, ``method=``);
+5. SCRs are found and measured (:mod:`.scr`);
+6. heart rate, where present, is checked and put on the grid (:mod:`.hr`).
+
+Before the low-pass only every k-th grid sample is kept (after a zero-phase CIC
+anti-alias filter), k chosen so that the kept rate is at least ``[signals.eda]
+analysis_hz``: skin conductance carries nothing above a few Hz. Steps 3 to 6 and
+the output samples use that rate. The align stage then maps the samples onto video
+seconds.
 """
 
 from __future__ import annotations
@@ -10,38 +26,163 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import SignalSettings
+from pipeline.signals.artifacts import RawEda, assess, bridged
+from pipeline.signals.decompose import decompose, decomposition_method
+from pipeline.signals.eda import decimate_cic, effective_lowpass_hz, lowpass_butterworth
+from pipeline.signals.grid import make_grid, to_grid
+from pipeline.signals.hr import heart_rate, hr_artifact_method
+from pipeline.signals.methods import describe_methods
+from pipeline.signals.scr import SCR_COLUMNS, scr_method, score_scrs, scr_table
 from pipeline.types import Recording, SessionSignals
+
+__all__ = ["process_recording", "describe_methods"]
+
+ACC = ("acc_x", "acc_y", "acc_z")
+
+
+def analysis_step(fs: float, analysis_hz: float) -> int:
+    """Every k-th grid sample is kept after the low-pass (k >= 1)."""
+    return max(1, int(fs // analysis_hz))
+
+
+def block_mean(a: np.ndarray, step: int) -> np.ndarray:
+    """Mean of each block of ``step`` samples (the last block may be shorter), NaN
+    samples ignored; one value per kept sample ``a[::step]``."""
+    if step == 1:
+        return a
+    n = a.size
+    full = n // step
+    have = np.isfinite(a)
+    vals = np.where(have, a, 0.0)
+    sums = vals[: full * step].reshape(full, step).sum(axis=1)
+    counts = have[: full * step].reshape(full, step).sum(axis=1)
+    if full * step < n:
+        sums = np.r_[sums, vals[full * step:].sum()]
+        counts = np.r_[counts, have[full * step:].sum()]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(counts > 0, sums / np.maximum(counts, 1), np.nan)
+
+
+def motion_magnitude(rec: Recording, grid, max_interp_s: float) -> np.ndarray | None:
+    """|accelerometer magnitude - 1 g| on the grid, where all three axes are present."""
+    if not all(a in rec.channels for a in ACC):
+        return None
+    x, y, z = (to_grid(grid, rec.time_s, rec.channels[a], max_interp_s) for a in ACC)
+    mag = np.hypot(np.hypot(x, y), z)
+    mag -= 1.0
+    return np.abs(mag, out=mag)
 
 
 def process_recording(rec: Recording, cfg: SignalSettings) -> SessionSignals:
-    """Mark impossible skin conductance invalid; keep the rest as recorded.
+    """Clean, decompose and score one recording's skin conductance; add heart rate
+    and motion where the recording has them.
 
-    A sample is invalid when it is missing, at or below ``eda.min_us`` or above
-    ``eda.max_us`` (non-positive conductance is physically impossible; see
-    configs/defaults.toml for the ceiling's source).
+    Parameters
+    ----------
+    rec : Recording
+        The recording on its own sensor clock (``eda_us`` required).
+    cfg : SignalSettings
+        The ``[signals]`` section.
+
+    Returns
+    -------
+    SessionSignals
+        ``samples`` at the kept rate (``sampling_rate_hz``): time_s, eda_us (cleaned),
+        eda_tonic_us, eda_phasic_us (all NaN where invalid), eda_valid, and where
+        present hr_bpm, hr_valid, motion_g; ``scrs`` one row per SCR (sensor clock);
+        ``invalid_share`` per rule; ``methods`` the registry keys that ran.
     """
-    eda = rec.channels["eda_us"].astype(float)
-    missing = ~np.isfinite(eda)
-    out_of_range = ~missing & ((eda <= cfg.eda.min_us) | (eda > cfg.eda.max_us))
-    valid = ~(missing | out_of_range)
-    n = max(len(eda), 1)
-    samples = pd.DataFrame({
-        "time_s": rec.time_s,
-        "eda_us": np.where(valid, eda, np.nan),
-        "eda_tonic_us": np.nan,
-        "eda_phasic_us": np.nan,
-        "eda_valid": valid,
-    })
-    if "hr_bpm" in rec.channels:
-        hr = rec.channels["hr_bpm"]
-        samples["hr_bpm"] = hr
-        samples["hr_valid"] = np.isfinite(hr)
-    scrs = pd.DataFrame(columns=["onset_s", "peak_s", "amplitude_us", "rise_time_s",
-                                 "half_recovery_s"], dtype=float)
-    return SessionSignals(
-        samples=samples,
-        scrs=scrs,
-        invalid_share={"missing": missing.sum() / n, "out_of_range": out_of_range.sum() / n},
-        methods={"eda_validity": "range"},
-        sampling_rate_hz=rec.sampling_rate_hz,
-    )
+    # fail on a misspelt method before any work
+    decomposition_method(cfg.decomposition.method)
+    scr_method(cfg.scr.method)
+    hr_artifact_method(cfg.hr.artifact_method)
+    notes: list[str] = []
+    grid = make_grid(rec.time_s, cfg.resample_hz)
+    times = grid.times(rec.time_s)
+    fs = grid.fs
+    if not grid.same_as_input:
+        notes.append(f"resampled to a uniform {fs:g} Hz grid (max_interp_s "
+                     f"{cfg.max_interp_s:g})")
+    step = analysis_step(fs, cfg.eda.analysis_hz)
+    fa = fs / step
+    times_a = np.ascontiguousarray(times[::step]) if step > 1 else times
+    if step > 1:
+        notes.append(f"processed samples kept at {fa:g} Hz (every {step}th grid sample, "
+                     "after an anti-alias filter)")
+    motion_g = motion_magnitude(rec, grid, cfg.max_interp_s)
+    x = to_grid(grid, rec.time_s, rec.channels["eda_us"], cfg.max_interp_s)
+    columns, scrs, shares, methods = _skin_conductance(x, fs, step, times_a, motion_g,
+                                                       cfg, notes)
+    del x
+
+    hr = heart_rate(rec.time_s, rec.channels, times_a, fa, cfg.hr, cfg.max_interp_s)
+    if hr is not None:
+        columns["hr_bpm"] = hr.hr_bpm
+        columns["hr_valid"] = hr.valid
+        shares.update(hr.shares)
+        methods["hr_artifacts"] = cfg.hr.artifact_method
+        methods["hr_source"] = hr.source
+    if motion_g is not None:
+        columns["motion_g"] = block_mean(motion_g, step)
+    samples = pd.DataFrame(columns, copy=False)
+    return SessionSignals(samples=samples, scrs=scrs, invalid_share=shares,
+                          methods=methods, sampling_rate_hz=fa, notes=notes)
+
+
+def _skin_conductance(x: np.ndarray, fs: float, step: int, times_a: np.ndarray,
+                      motion_g: np.ndarray | None, cfg: SignalSettings, notes: list[str]
+                      ) -> tuple[dict, pd.DataFrame, dict, dict]:
+    """Steps 2-5 on the grid's skin conductance; the columns are at the kept rate."""
+    n_a = times_a.size
+    fa = fs / step
+    empty_scrs = pd.DataFrame({c: np.zeros(0) for c in SCR_COLUMNS})
+
+    def nothing(shares: dict) -> tuple[dict, pd.DataFrame, dict, dict]:
+        cols = {"time_s": times_a, "eda_us": np.full(n_a, np.nan),
+                "eda_tonic_us": np.full(n_a, np.nan), "eda_phasic_us": np.full(n_a, np.nan),
+                "eda_valid": np.zeros(n_a, dtype=bool)}
+        return cols, empty_scrs, shares, {}
+
+    if x.size < 4 or not np.isfinite(x).any():
+        notes.append("no usable skin conductance samples")
+        return nothing({"missing": 1.0, "invalid": 1.0})
+
+    # 2. artifacts
+    raw = RawEda(x, fs, motion_g)
+    validity = assess(raw, cfg.eda, cfg.max_interp_s)
+    del raw
+    if validity.invalid.all():
+        notes.append("every skin conductance sample is invalid")
+        return nothing(dict(validity.shares))
+
+    # 3. decimation to the kept rate, then the low-pass (cut-off kept below the
+    #    kept rate's Nyquist rate)
+    fc = effective_lowpass_hz(fa, cfg.eda)
+    if fc < cfg.eda.lowpass_hz:
+        notes.append(f"low-pass cut-off lowered to {fc:g} Hz for a {fa:g} Hz signal")
+    lp_cfg = cfg.eda.model_copy(update={"lowpass_hz": fc})
+    gap_free = bridged(x, validity)
+    kept = decimate_cic(gap_free, step)
+    del gap_free
+    cleaned = lowpass_butterworth(kept, fa, lp_cfg)
+    del kept
+    invalid = np.ascontiguousarray(validity.invalid[::step])
+    shares = dict(validity.shares)
+    del validity
+
+    # 4-5. decomposition and SCRs
+    dec = decompose(cleaned, fa, cfg.decomposition)
+    notes.extend(dec.notes)
+    found = score_scrs(dec.phasic, cleaned, ~invalid, fa, cfg.scr)
+    scrs = scr_table(found, times_a)
+    tonic, phasic = dec.tonic, dec.phasic
+    del dec
+    for arr in (cleaned, tonic, phasic):
+        np.copyto(arr, np.nan, where=invalid)
+    columns = {"time_s": times_a, "eda_us": cleaned, "eda_tonic_us": tonic,
+               "eda_phasic_us": phasic, "eda_valid": ~invalid}
+    methods = {"eda_artifact_rules": ",".join(cfg.eda.rules),
+               "eda_lowpass": "butterworth",
+               "eda_decomposition": cfg.decomposition.method,
+               "scr_scoring": cfg.scr.method}
+    return columns, scrs, shares, methods

@@ -536,6 +536,7 @@ def _headlines(lines: list[str]) -> list[str]:
     picked += [ln for ln in lines if "a discovery at false discovery rate" in ln
                and ln not in picked]
     picked += [ln for ln in lines if ln.startswith("switch rate,") and "disagree" in ln]
+    picked += [ln for ln in lines if ln.startswith(("agreement:", "  attended platform:"))]
     return picked
 
 
@@ -591,11 +592,29 @@ def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
         outdir.csv("metrics/switch_locked.csv", traj, "metrics")
         outdir.csv("models/switch_locked_test.csv", test, "models")
         lines += more
+    lines += _agreement(study, cfg, outdir)
     survey = _optional("pipeline.models", "compare_survey")
     if survey is not None and study.survey is not None:
         table = survey(study.survey, study.roster, cfg.models.fdr_q)
         outdir.csv("models/survey.csv", table, "models")
     return lines
+
+
+def _agreement(study: Study, cfg: Config, outdir: OutputFolder) -> list[str]:
+    """Coder agreement, where some session is coded by two or more coders."""
+    from pipeline.agreement.summary import summary_lines
+    from pipeline.agreement.tables import agreement_tables, study_agreement
+
+    per_session = study.media_log.groupby(["participant_id", "session_id"])["coder"].nunique()
+    if not (per_session > 1).any():
+        return []
+    results = study_agreement(study, cfg)
+    tables = agreement_tables(results, cfg.agreement.switch_tolerance_s,
+                              cfg.agreement.switch_matching)
+    for name, table in tables.items():
+        outdir.csv(f"agreement/{name}", table, "agreement")
+    return summary_lines(tables["study.csv"].iloc[0].to_dict(), len(study.sessions),
+                         len(tables["alpha.csv"]))
 
 
 def _build_report(outdir: OutputFolder, manifest: dict) -> list[str]:

@@ -44,6 +44,25 @@ def power_lines(table) -> list[str]:
     return lines
 
 
+def write_power_chart(table, out_dir: Path, settings: dict) -> Path | None:
+    """The report's power curve for this table, as OUT/charts/power.{png,svg,html}."""
+    from pipeline.report.charts.power import power_curve
+    from pipeline.report.export import javascript_bundle, write_chart
+    from pipeline.report.palette import build_palette
+    from pipeline.report.run_files import Missing, RunFiles
+
+    run = RunFiles(out_dir=out_dir, manifest={}, config={"power": settings},
+                   tables={"power": table})
+    try:
+        fig = power_curve(run, build_palette([]))
+    except Missing as why:
+        typer.echo(f"power chart left out: {why}", err=True)
+        return None
+    charts = out_dir / "charts"
+    charts.mkdir(parents=True, exist_ok=True)
+    return write_chart(fig, charts, javascript_bundle()).png
+
+
 @app.command()
 @guarded
 def power(
@@ -84,7 +103,8 @@ def power(
 
     Simulates whole studies of media codes with the synthetic generator, counts switches
     with the pipeline's definitions and fits the same mixed model as `run`. Writes
-    OUT/power.csv: power with its Monte-Carlo interval per number of participants.
+    OUT/power.csv: power with its Monte-Carlo interval per number of participants, and
+    the power curve as OUT/charts/power.{png,svg,html}.
     """
     from pipeline.config import Config, resolve_study
     from pipeline.models.power import PowerScenario, default_behaviour, power_table
@@ -120,8 +140,11 @@ def power(
                             progress=progress)
     target = OutputFolder(out)
     path = target.csv(POWER_FILE, table, stage="power")
+    chart = write_power_chart(table, target.root, {
+        "sessions": sessions, "hours": hours, "rate_ratio": rate_ratio,
+        "simulations": simulations, "alpha": alpha, "seed": seed})
     typer.echo(f"true rate ratio of the simulated behaviour: "
                f"{table['true_rate_ratio'].iloc[0]:.3f} (nominal {rate_ratio:g})")
     for line in power_lines(table):
         typer.echo(line)
-    typer.echo(f"wrote {path}")
+    typer.echo(f"wrote {path}" + (f" and {chart}" if chart else ""))

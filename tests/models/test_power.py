@@ -124,6 +124,8 @@ def test_power_cli_writes_power_csv(tmp_path):
     assert list(table.participants_per_cohort) == [3, 4]
     assert {"power", "ci_low", "ci_high", "n_simulations"} <= set(table.columns)
     assert "3 participants per cohort: power" in res.output
+    for ext in ("png", "svg", "html"):
+        assert (tmp_path / "charts" / f"power.{ext}").stat().st_size > 0
 
 
 def test_power_cli_refuses_bad_participants(tmp_path):

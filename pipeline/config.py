@@ -228,6 +228,10 @@ class ScrSettings(StrictModel):
         0.01, gt=0, description="Smallest SCR amplitude counted (µS); also the smallest dip "
         "that separates two responses."
     )
+    max_rise_time_s: float = Field(
+        4.0, gt=0, description="A rise from onset to peak slower than this (s) is a change "
+        "of tonic level, not an SCR."
+    )
     max_half_recovery_s: float = Field(
         20.0, gt=0, description="Half-recovery is searched this long after the peak (s); "
         "NaN when not reached before it, the next SCR or invalid signal."

@@ -107,7 +107,7 @@ def process_recording(rec: Recording, cfg: SignalSettings) -> SessionSignals:
     fa = fs / step
     times_a = np.ascontiguousarray(times[::step]) if step > 1 else times
     if step > 1:
-        notes.append(f"processed samples kept at {fa:g} Hz (every {step}th grid sample, "
+        notes.append(f"processed samples kept at {fa:g} Hz (one grid sample in {step}, "
                      "after an anti-alias filter)")
     motion_g = motion_magnitude(rec, grid, cfg.max_interp_s)
     x = to_grid(grid, rec.time_s, rec.channels["eda_us"], cfg.max_interp_s)

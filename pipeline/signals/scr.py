@@ -124,7 +124,8 @@ def scrs_by_trough_to_peak(phasic: np.ndarray, cleaned: np.ndarray, valid: np.nd
         Rate of the analysis grid (Hz).
     cfg : ScrSettings
         ``min_amplitude_us`` (the smallest response, and the smallest dip that
-        separates two responses) and ``max_half_recovery_s``.
+        separates two responses), ``max_rise_time_s`` (a slower rise is a change of
+        tonic level) and ``max_half_recovery_s``.
 
     References
     ----------
@@ -148,7 +149,8 @@ def scrs_by_trough_to_peak(phasic: np.ndarray, cleaned: np.ndarray, valid: np.nd
     amp = cleaned[peak] - cleaned[onset]
     bad_cum = np.concatenate(([0], np.cumsum(~valid)))
     touches_invalid = (bad_cum[peak + 1] - bad_cum[onset]) > 0
-    ok = (amp >= h) & ~touches_invalid & ((phasic[peak] - phasic[onset]) >= h)
+    quick = (peak - onset) <= cfg.max_rise_time_s * fs
+    ok = (amp >= h) & quick & ~touches_invalid & ((phasic[peak] - phasic[onset]) >= h)
     onset, peak, amp = onset[ok], peak[ok], amp[ok]
     half = _half_recovery(cleaned, valid, onset, peak, amp, fs, cfg.max_half_recovery_s)
     return ScrIndices(onset, peak, amp, (peak - onset) / fs, half)

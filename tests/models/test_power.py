@@ -114,7 +114,8 @@ def test_power_cli_help():
     assert "--participants" in res.output and "--rate-ratio" in res.output
 
 
-def test_power_cli_writes_power_csv(tmp_path):
+@pytest.mark.slow
+def test_power_cli_writes_power_csv_and_the_chart(tmp_path):
     res = runner.invoke(app, ["power", "--participants", "3,4", "--sessions", "2",
                               "--hours", "0.5", "--rate-ratio", "1.5", "--simulations", "2",
                               "--seed", "1", "--truth-sessions", "10", "--out",

@@ -36,6 +36,9 @@ from pipeline.ingest import load_study
 from pipeline.ingest import read_recording_checked
 from pipeline.metrics.arousal import add_arousal, arousal_source
 from pipeline.metrics.session import session_metrics
+from pipeline.metrics.switch_locked import (session_seed, switch_locked_methods,
+                                            switch_locked_session, switch_locked_summary)
+from pipeline.models import compare, compare_survey, survey_methods
 from pipeline.outputs import OutputFolder, sha256_file
 from pipeline.signals import process_recording
 from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
@@ -134,23 +137,11 @@ def finish_session(task: FinishTask) -> Finished:
     """Arousal z-score, media metrics and switch-locked arousal of one session."""
     timeline = add_arousal(task.load_timeline(), task.mean, task.sd, task.cfg.arousal)
     metrics = session_metrics(timeline, task.inputs, task.cfg)
-    locked = None
-    if _switch_locked is not None:
-        locked = _switch_locked(timeline, metrics.switches, task.seed)
+    locked = switch_locked_session(timeline, metrics.switches, task.seed,
+                                   window_s=task.cfg.models.switch_locked_window_s,
+                                   n_pseudo=task.cfg.models.switch_locked_pseudo)
     return Finished(key=task.inputs.key, timeline=timeline, metrics=metrics,
                     switch_locked=locked)
-
-
-def _optional(module: str, name: str) -> Callable | None:
-    import importlib
-
-    try:
-        return getattr(importlib.import_module(module), name)
-    except (ImportError, AttributeError):
-        return None
-
-
-_switch_locked = _optional("pipeline.metrics.switch_locked", "switch_locked_session")
 
 
 class _Lazy:
@@ -408,7 +399,8 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     def finish_task(i: int) -> FinishTask:
         pid = inputs[i].key.participant_id
         cache = outdir.path(f"{CACHE_DIR}/{inputs[i].key.stem()}.pkl")
-        task = FinishTask(inputs[i], zstats[pid][0], zstats[pid][1], cfg, seed=i,
+        task = FinishTask(inputs[i], zstats[pid][0], zstats[pid][1], cfg,
+                          seed=session_seed(pid, inputs[i].key.session_id),
                           cache_file=cache)
         if cluster:  # workers may not see this file system: ship the timeline
             task.timeline = task.load_timeline()
@@ -569,40 +561,45 @@ def _describe(study: Study, cfg: Config, sessions: pd.DataFrame, qc: pd.DataFram
 def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
                     finished: dict[int, Finished], ok: list[int], outdir: OutputFolder,
                     methods: dict) -> list[str]:
-    """Models, switch-locked arousal and survey comparisons (where their modules exist)."""
+    """Models, switch-locked arousal, coder agreement and survey comparisons."""
+    m = cfg.models
     lines: list[str] = []
-    compare = _optional("pipeline.models", "compare")
-    if compare is not None:
-        sessions = tables["metrics/sessions.csv"]
-        states = tables["metrics/states.csv"]
-        groups = tables["metrics/groups.csv"]
-        if cfg.qc.exclude_flagged_from_models and len(sessions):
-            keep = sessions.loc[sessions["usable"], ["participant_id", "session_id"]]
-            states = states.merge(keep, on=["participant_id", "session_id"]) if len(states) \
-                else states
-        results = compare(sessions, states, groups, study.roster, cfg.models, cfg.cohorts)
-        outdir.csv("models/comparisons.csv", results.comparisons, "models")
-        methods["models"] = results.methods
-        lines += results.summary
-    summarise = _optional("pipeline.metrics.switch_locked", "switch_locked_summary")
-    if summarise is not None and _switch_locked is not None:
-        parts = [finished[i].switch_locked for i in ok if finished[i].switch_locked is not None]
-        per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
-        traj, test, more = summarise(per_session, study.roster)
-        outdir.csv("metrics/switch_locked.csv", traj, "metrics")
-        outdir.csv("models/switch_locked_test.csv", test, "models")
-        lines += more
-    lines += _agreement(study, cfg, outdir)
-    survey = _optional("pipeline.models", "compare_survey")
-    if survey is not None and study.survey is not None:
-        table = survey(study.survey, study.roster, cfg.models.fdr_q)
+    results = compare(tables["metrics/sessions.csv"], tables["metrics/states.csv"],
+                      tables["metrics/groups.csv"], study.roster, m, cfg.cohorts,
+                      exclude_unusable=cfg.qc.exclude_flagged_from_models)
+    outdir.csv("models/comparisons.csv", results.comparisons, "models")
+    outdir.csv("models/variance_components.csv", results.variances, "models")
+    methods["models"] = dict(results.methods)
+    lines += results.summary
+
+    parts = [finished[i].switch_locked for i in ok
+             if finished[i].switch_locked is not None and len(finished[i].switch_locked)]
+    per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
+    traj, test, more = switch_locked_summary(
+        per_session, study.roster, pre_s=m.switch_locked_pre_s,
+        min_events=m.min_switch_events, confidence=m.confidence_level,
+        reference=cfg.cohorts.reference)
+    outdir.csv("metrics/switch_locked.csv", traj, "metrics")
+    outdir.csv("models/switch_locked_test.csv", test, "models")
+    methods["models"].update(switch_locked_methods(m.switch_locked_window_s,
+                                                   m.switch_locked_pre_s))
+    lines += more
+
+    lines += _agreement(study, cfg, outdir, methods)
+    if study.survey is not None:
+        table = compare_survey(study.survey, study.roster, m.fdr_q, method=m.survey_method,
+                               reference=cfg.cohorts.reference,
+                               items=cfg.survey.items or None,
+                               min_participants=cfg.cohorts.min_participants,
+                               fdr_method=m.fdr_method, confidence=m.confidence_level)
         outdir.csv("models/survey.csv", table, "models")
+        methods["models"].update(survey_methods(m.survey_method, m.fdr_method))
     return lines
 
 
-def _agreement(study: Study, cfg: Config, outdir: OutputFolder) -> list[str]:
+def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict) -> list[str]:
     """Coder agreement, where some session is coded by two or more coders."""
-    from pipeline.agreement.summary import summary_lines
+    from pipeline.agreement.summary import agreement_methods, summary_lines
     from pipeline.agreement.tables import agreement_tables, study_agreement
 
     per_session = study.media_log.groupby(["participant_id", "session_id"])["coder"].nunique()
@@ -613,14 +610,15 @@ def _agreement(study: Study, cfg: Config, outdir: OutputFolder) -> list[str]:
                               cfg.agreement.switch_matching)
     for name, table in tables.items():
         outdir.csv(f"agreement/{name}", table, "agreement")
+    methods["agreement"] = agreement_methods(cfg.agreement.switch_tolerance_s,
+                                             cfg.agreement.switch_matching)
     return summary_lines(tables["study.csv"].iloc[0].to_dict(), len(study.sessions),
                          len(tables["alpha.csv"]))
 
 
 def _build_report(outdir: OutputFolder, manifest: dict) -> list[str]:
-    build = _optional("pipeline.report", "build_report")
-    if build is None:
-        return []
+    from pipeline.report import build_report as build
+
     outdir.json("manifest.json", manifest, "runner")  # the report reads it
     written = build(outdir.root)
     for p in written:

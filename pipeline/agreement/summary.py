@@ -40,3 +40,29 @@ def summary_lines(study_row: dict, n_sessions: int, n_alpha: int) -> list[str]:
                      "in alpha.csv); pooled over every session: attended "
                      f"{_num(r['alpha_attended'])}, state {_num(r['alpha_state'])}")
     return lines
+
+
+#: Method text of each agreement step, with references, for the report's methods section.
+MATCHING_TEXT = {
+    "optimal": "one-to-one by an optimal assignment that pairs as many switches as "
+               "possible, then the smallest total time difference (Kuhn 1955, Naval Res "
+               "Logist Q 2:83-97)",
+    "greedy": "one-to-one, closest pairs first",
+}
+
+
+def agreement_methods(tolerance_s: int, matching: str) -> dict[str, str]:
+    """Method texts (with references) of the agreement tables that were written."""
+    return {
+        "agreement_kappa": "per-second Cohen's kappa on the attended platform (each platform "
+                           "and none) and on the coarse state (Cohen 1960, Educ Psychol Meas "
+                           "20:37-46), read with the bands of Landis & Koch (1977), "
+                           "Biometrics 33:159-174",
+        "agreement_alpha": "Krippendorff's alpha for nominal codes where three or more "
+                           "coders coded a session (Krippendorff 2011, Computing "
+                           "Krippendorff's alpha-reliability)",
+        "agreement_switches": f"switch events of the second coder matched to the first's "
+                              f"within {tolerance_s} s with the same from and to platforms, "
+                              f"{MATCHING_TEXT.get(matching, matching)}; precision, recall "
+                              "and F1",
+    }

@@ -8,6 +8,7 @@ the analysis does. References are numbered in order of first mention.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 
 from pipeline.report import numbers as fmt
@@ -46,11 +47,28 @@ class Methods:
         self.sections.append((heading, text))
 
 
+_YEAR = re.compile(r"\b(1[89]\d\d|20\d\d)\b")
+
+
 def _stage_methods(m: Methods, run: RunFiles, stage: str) -> str:
+    """' Methods used: ...' for one stage of the manifest's ``methods``.
+
+    An entry whose text cites a publication (it has a year) becomes a numbered
+    reference; a bare method key (e.g. ``eda_lowpass: butterworth``) is named inline.
+    """
     used = run.methods.get(stage) or {}
     if not used:
         return ""
-    bits = [f"{key} {m.cite(ref)}" if ref.strip() else key for key, ref in used.items()]
+    bits = []
+    for key, text in used.items():
+        name = key.replace("_", " ")
+        text = text.strip()
+        if _YEAR.search(text):
+            bits.append(f"{name} {m.cite(f'{name}: {text}')}")
+        elif text:
+            bits.append(f"{name}: {text.replace(',', ', ').replace('_', ' ')}")
+        else:
+            bits.append(name)
     return " Methods used: " + "; ".join(bits) + "."
 
 
@@ -102,8 +120,8 @@ def build_methods(run: RunFiles, figure_refs: list[str] = ()) -> Methods:
     eda = (c.get("signals") or {}).get("eda") or {}
     m.add("Skin conductance", (
         f"Skin conductance at or below {fmt.short(eda.get('min_us', 0.0))} µS or above "
-        f"{fmt.short(eda.get('max_us', 100.0))} µS, and flat-lined stretches, were marked "
-        f"invalid; a video second is valid when at least "
+        f"{fmt.short(eda.get('max_us', 100.0))} µS was marked invalid, with the "
+        f"configured artifact rules; a video second is valid when at least "
         f"{fmt.pct(eda.get('min_valid_share', 0.5))} of its samples are. Sensor time was "
         "mapped to video time by the sync events of each session (offset from one pair, "
         "offset and linear drift from two or more, least squares); sessions without sync "
@@ -140,6 +158,21 @@ def build_methods(run: RunFiles, figure_refs: list[str] = ()) -> Methods:
           f"(Benjamini–Hochberg, q = {mo.get('fdr_q', 0.05):g})."
         + _stage_methods(m, run, "models") + _stage_methods(m, run, "survey")))
 
+    if run.has("switch_locked"):
+        window = mo.get("switch_locked_window_s")
+        pseudo = mo.get("switch_locked_pseudo")
+        pre = mo.get("switch_locked_pre_s")
+        m.add("Switch-locked arousal", (
+            "Arousal was traced "
+            + (f"{window} s either side of each switch" if window else "around each switch")
+            + " and, as the baseline, around "
+            + (f"{pseudo} pseudo-switches" if pseudo else "pseudo-switches")
+            + " placed at random in each session's multi-platform time; trajectories were "
+              "averaged within participants first. "
+            + (f"Whether arousal rises or falls over the {pre} s before a switch was tested on "
+               "the slope of the switch minus pseudo-switch trajectory across participants."
+               if pre else "")
+            + _stage_methods(m, run, "switch_locked")))
     if run.has("agreement"):
         tol = (c.get("agreement") or {}).get("switch_tolerance_s", 2)
         m.add("Coder agreement", (
@@ -159,7 +192,7 @@ def build_methods(run: RunFiles, figure_refs: list[str] = ()) -> Methods:
             f"conventional 80% target {m.cite(COHEN_1988)}." + _stage_methods(m, run, "power")))
 
     known = {"ingest", "switching", "metrics", "dwell", "signals", "eda", "hr", "align",
-             "arousal", "qc", "models", "survey", "agreement", "power"}
+             "arousal", "qc", "models", "survey", "agreement", "power", "switch_locked"}
     for stage in run.methods:
         if stage not in known:
             text = _stage_methods(m, run, stage).strip()
@@ -171,6 +204,6 @@ def build_methods(run: RunFiles, figure_refs: list[str] = ()) -> Methods:
     m.add("Charts", (
         "Colour stands for platform only, with the same colour for a platform in every chart, "
         f"from the colour-blind-safe set of Okabe and Ito {m.cite(OKABE_ITO_REF)} ({names}, "
-        "...); cohorts are told apart by grey level and line dash. Confidence intervals of "
+        "...); cohorts are told apart by position, panel or grey level. Confidence intervals of "
         f"means across participants are Student-t intervals {m.cite(student)}."))
     return m

@@ -26,6 +26,7 @@ TABLE_PATHS: dict[str, str] = {
     "bouts": "metrics/bouts.csv",
     "switches": "metrics/switches.csv",
     "switch_locked": "metrics/switch_locked.csv",
+    "switch_locked_test": "models/switch_locked_test.csv",
     "comparisons": "models/comparisons.csv",
     "survey": "models/survey.csv",
     "qc": "qc/sessions.csv",
@@ -46,6 +47,8 @@ REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {
     "agreement": ("participant_id", "session_id", "coder_a", "coder_b", "seconds_compared",
                   "kappa_attended", "kappa_state", "switch_f1"),
     "power": ("participants_per_cohort", "power", "ci_low", "ci_high"),
+    "switch_locked": ("level", "lag_s", "arousal_switch_z", "switch_ci_low", "switch_ci_high",
+                      "arousal_pseudo_z", "baseline_ci_low", "baseline_ci_high"),
 }
 
 #: Columns always read as text (IDs such as "007" must stay as typed).
@@ -53,6 +56,8 @@ TEXT_COLUMNS = frozenset({
     "participant_id", "session_id", "cohort", "state", "fine_state", "platform", "group",
     "outcome", "model", "term", "scale", "note", "coder", "coder_a", "coder_b", "flags",
     "from_platform", "to_platform", "item", "in_view", "attended", "reason", "method",
+    "level", "scope", "reference", "direction", "censor_reason", "coder", "channels",
+    "recording", "effect_measure",
 })
 BOOL_TEXT = {"true": True, "false": False, "1": True, "0": False, "yes": True, "no": False}
 
@@ -82,11 +87,10 @@ def _read_table(path: Path) -> pd.DataFrame:
         if len(nonempty) and nonempty.isin(["true", "false"]).all():
             out[col] = lowered.map(BOOL_TEXT).astype("boolean")
             continue
-        num = pd.to_numeric(text.replace({"": np.nan, "nan": np.nan, "NaN": np.nan,
-                                          "NA": np.nan, "inf": np.inf, "-inf": -np.inf}),
-                            errors="coerce")
+        blank = text.isin(["", "nan", "NaN", "NA"])
+        num = pd.to_numeric(text.where(~blank, None), errors="coerce")
         # a column with text that is not a number stays text
-        bad = num.isna() & ~text.isin(["", "nan", "NaN", "NA"])
+        bad = num.isna() & ~blank
         out[col] = text if bad.any() else num.astype(float)
     return pd.DataFrame(out, index=raw.index)
 

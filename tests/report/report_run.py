@@ -132,10 +132,13 @@ def write_run(out: Path, *, hostile: bool = True, optional: bool = True) -> Path
                                 "invalid_share": 1 - float(tl["signal_valid"].mean()),
                                 "usable": not flagged,
                                 "flags": "low_valid_signal" if flagged else ""})
-            for lag in range(-20, 11):
+            for lag in range(-20, 21):
                 bump = 0.4 * np.exp(-((lag - 1) ** 2) / 8)
-                lock_rows.append({"participant_id": pid, "cohort": cohort, "lag_s": lag,
-                                  "arousal_mean": bump + rng.normal(0, 0.05)})
+                lock_rows.append({"level": "participant", "participant_id": pid,
+                                  "cohort": cohort, "lag_s": lag,
+                                  "arousal_switch_z": bump + rng.normal(0, 0.05),
+                                  "arousal_pseudo_z": rng.normal(0, 0.05),
+                                  "n_participants": 1, "n_switches": 40})
     pd.DataFrame(sess_rows).to_csv(out / "metrics/sessions.csv", index=False)
     pd.DataFrame(state_rows).to_csv(out / "metrics/states.csv", index=False)
     plat = pd.DataFrame(plat_rows)
@@ -145,24 +148,48 @@ def write_run(out: Path, *, hostile: bool = True, optional: bool = True) -> Path
     pd.DataFrame(bout_rows).to_csv(out / "metrics/bouts.csv", index=False)
     pd.DataFrame(sw_rows).to_csv(out / "metrics/switches.csv", index=False)
     pd.DataFrame(qc_rows).to_csv(out / "qc/sessions.csv", index=False)
-    pd.DataFrame(lock_rows).to_csv(out / "metrics/switch_locked.csv", index=False)
+    lock = pd.DataFrame(lock_rows)
+    per = lock.groupby(["cohort", "lag_s"], as_index=False).agg(
+        arousal_switch_z=("arousal_switch_z", "mean"), arousal_pseudo_z=("arousal_pseudo_z", "mean"),
+        n_participants=("participant_id", "nunique"), n_switches=("n_switches", "sum"))
+    per["level"] = "cohort"
+    for col, half in (("switch", 0.08), ("baseline", 0.06)):
+        mid = per["arousal_switch_z" if col == "switch" else "arousal_pseudo_z"]
+        per[f"{col}_ci_low"], per[f"{col}_ci_high"] = mid - half, mid + half
+    pd.concat([lock, per], ignore_index=True).to_csv(out / "metrics/switch_locked.csv",
+                                                     index=False)
+    pd.DataFrame([
+        {"scope": "all", "cohort": "", "reference": "", "n_participants": 6, "n_left_out": 0,
+         "slope_z_per_s": 0.0102, "ci_low": 0.004, "ci_high": 0.0164, "change_z": 0.122,
+         "statistic": 4.1, "df": 5, "p_value": 0.0093, "wilcoxon_p": 0.031, "direction": "rises",
+         "note": ""}]).to_csv(out / "models/switch_locked_test.csv", index=False)
+    def row(outcome, model, term, est, lo, hi, p, p_fdr, n_obs, scale, note=""):
+        return {"outcome": outcome, "model": model, "term": term, "estimate": est,
+                "std_error": (hi - lo) / 3.92, "ci_low": lo, "ci_high": hi, "p_value": p,
+                "p_fdr": p_fdr, "n_participants": 6, "n_obs": n_obs, "scale": scale,
+                "converged": True, "note": note}
+
+    nan = np.nan
+    # the models stage's layout: treatment terms "cohort[teen]", variance rows, p_fdr only
+    # on the tested (cohort) terms
     comp = pd.DataFrame([
-        {"outcome": "switches_per_hour", "model": "mixed_poisson", "term": "Intercept",
-         "estimate": 4.6, "std_error": 0.1, "ci_low": 4.4, "ci_high": 4.8, "p_value": 1e-9,
-         "p_fdr": 1e-9, "n_participants": 6, "n_obs": 12, "scale": "log", "converged": True,
-         "note": ""},
-        {"outcome": "switches_per_hour", "model": "mixed_poisson", "term": "cohort[T.teen]",
-         "estimate": 0.3365, "std_error": 0.12, "ci_low": 0.1013, "ci_high": 0.5717,
-         "p_value": 0.0051, "p_fdr": 0.0153, "n_participants": 6, "n_obs": 12, "scale": "log",
-         "converged": True, "note": ""},
-        {"outcome": "compression_ratio", "model": "mixed_linear", "term": "cohort[T.teen]",
-         "estimate": -0.04, "std_error": 0.05, "ci_low": -0.138, "ci_high": 0.058,
-         "p_value": 0.42, "p_fdr": 0.42, "n_participants": 6, "n_obs": 12, "scale": "identity",
-         "converged": True, "note": ""},
-        {"outcome": "arousal_range", "model": "mixed_linear", "term": "state[T.multi]",
-         "estimate": -0.21, "std_error": 0.08, "ci_low": -0.367, "ci_high": -0.053,
-         "p_value": 0.009, "p_fdr": 0.0135, "n_participants": 6, "n_obs": 24,
-         "scale": "identity", "converged": False, "note": "boundary fit"},
+        row("switches_per_hour", "mixed_reml", "Intercept", 4.6, 4.4, 4.8, 1e-9, nan, 12, "log"),
+        row("switches_per_hour", "mixed_reml", "cohort[teen]", 0.3365, 0.1013, 0.5717,
+            0.0051, 0.0153, 12, "log"),
+        row("switches_per_hour", "mixed_reml", "var(participant)", 0.01, nan, nan, nan, nan,
+            12, "variance"),
+        row("switches_per_hour", "mixed_reml", "var(residual)", 0.02, nan, nan, nan, nan,
+            12, "variance"),
+        row("switches", "poisson_gee", "cohort[teen]", 0.31, 0.08, 0.54, 0.008, nan, 12, "log"),
+        row("dwell_median_s[screen]", "mixed_reml", "cohort[teen]", -2.5, -5.1, 0.1, 0.06,
+            0.09, 12, "identity"),
+        row("arousal_range", "mixed_reml", "Intercept", 2.8, 2.5, 3.1, 1e-6, nan, 24, "identity"),
+        row("arousal_range", "mixed_reml", "cohort[teen]", -0.04, -0.138, 0.058, 0.42, 0.42, 24,
+            "identity"),
+        row("arousal_range", "mixed_reml", "state[multi]", -0.21, -0.367, -0.053, 0.009, nan,
+            24, "identity"),
+        row("arousal_range", "mixed_reml", "cohort[teen]:state[multi]", 0.35, 0.12, 0.58,
+            0.004, 0.012, 24, "identity", note="participant variance at zero (boundary fit)"),
     ])
     comp.to_csv(out / "models/comparisons.csv", index=False)
     pd.DataFrame([{"item": "enjoyment", "cohort": "teen", "estimate": 0.3, "ci_low": -0.1,
@@ -188,14 +215,17 @@ def write_run(out: Path, *, hostile: bool = True, optional: bool = True) -> Path
     name = HOSTILE_STUDY if hostile else "Evening media study"
     config = {"study": {"name": name, "timezone": "Europe/Berlin"},
               "platforms": {"groups": PLATFORMS, "labels": {}},
-              "cohorts": {"reference": "adult"}}
+              "cohorts": {"reference": "adult"},
+              "models": {"fdr_q": 0.05, "switch_locked_window_s": 20, "switch_locked_pseudo": 50,
+                         "switch_locked_pre_s": 12}}
     manifest = {
         "study": name, "config": config,
-        "methods": {"signals": {"median": "Median smoothing of skin conductance (common practice)."},
-                    "models": {"mixed_poisson": "Bates, D. et al. (2015). Fitting linear mixed-effects "
-                                                "models using lme4. J Stat Softw 67(1).",
-                               "fdr_bh": "Benjamini, Y. & Hochberg, Y. (1995). Controlling the false "
-                                         "discovery rate. J R Stat Soc B 57:289–300."}},
+        "methods": {"signals": {"eda_lowpass": "butterworth", "scr_scoring": "trough_to_peak"},
+                    "models": {"mixed_model": "linear mixed models by REML (Bates et al. 2015, "
+                                              "J Stat Softw 67(1))",
+                               "fdr": "Benjamini & Hochberg (1995), J R Stat Soc B "
+                                      "57:289-300"}},
+        "created_utc": "2026-01-05T10:00:00+00:00",
         "summary": ["12 of 12 sessions processed", "vocabulary declared: 3 platforms"],
         "inputs": {"roster.csv": "sha256:00"}, "outputs": {}, "versions": {"screenweave": "0.1.0"},
         "sessions_ok": 12, "sessions_total": 12,

@@ -50,7 +50,7 @@ def test_identity_rows_are_differences_and_negative_bounds_read_clearly():
                               ci_low=-0.37, ci_high=-0.05, scale="identity",
                               converged=False, note="boundary fit")])
     (e,) = F.effects(comp)
-    assert e.number() == "difference -0.21"
+    assert e.number() == "difference -0.21 z"  # arousal is a z-score
     assert "95% CI -0.37 to -0.05" in e.statistics()
     s = e.sentence("adult", 0.05)
     assert "did not converge" in s and "boundary fit" in s
@@ -77,3 +77,34 @@ def test_number_formats():
     assert fmt.short(2.0) == "2" and fmt.short(12.34) == "12.3"
     assert fmt.pct(0.6449) == "64%" and fmt.auto(2447.2) == "2447"
     assert fmt.interval(1.1, 1.83) == "1.10–1.83"
+
+
+def test_models_stage_layout_cohort_by_state_with_variance_rows():
+    # the models stage writes treatment terms as "cohort[b]" and "cohort[b]:state[multi]"
+    # (outcome ~ cohort * state, reference state single), variance components as rows
+    # with scale "variance", and p_fdr only for the tested terms
+    comp = pd.DataFrame([
+        _row(outcome="arousal_range", term="Intercept", scale="identity", estimate=3.3),
+        _row(outcome="arousal_range", term="cohort[late]", scale="identity", estimate=-0.41,
+             ci_low=-0.77, ci_high=-0.06, p_fdr=0.054),
+        _row(outcome="arousal_range", term="state[multi]", scale="identity", estimate=-1.17,
+             ci_low=-1.46, ci_high=-0.89, p_value=1e-11, p_fdr=float("nan")),
+        _row(outcome="arousal_range", term="cohort[late]:state[multi]", scale="identity",
+             estimate=0.755, ci_low=0.35, ci_high=1.16, p_value=4e-4, p_fdr=0.0035),
+        _row(outcome="arousal_range", term="var(participant)", scale="variance", estimate=0.01),
+        _row(outcome="multi_share", term="cohort[late]", scale="identity", estimate=-0.122,
+             ci_low=-0.226, ci_high=-0.018),
+    ])
+    effs = F.effects(comp)
+    assert [e.term for e in effs] == ["cohort[late]", "state[multi]",
+                                      "cohort[late]:state[multi]", "cohort[late]"]
+    cohort, state, inter, share = effs
+    assert cohort.term_label("early") == "late vs early in single"
+    assert state.term_label("early") == "multi vs single in early"
+    assert inter.term_label("early") == "multi − single difference, late vs early"
+    assert inter.number() == "difference 0.76 z" and inter.significant(0.05)
+    assert not state.in_fdr_family and not state.significant(0.05)
+    assert "not part of the false-discovery-rate family" in state.evidence(0.05)
+    assert share.number() == "difference -12.20 percentage points"
+    assert F.strongest(effs) is inter  # the tested family comes first
+    assert F.outcome_label("dwell_median_s[screen]") == "median dwell time, screen"

@@ -56,21 +56,22 @@ def test_hostile_strings_appear_only_escaped(page):
 def test_headline_numbers_come_from_comparisons_csv(page):
     out, text = page
     comp = pd.read_csv(out / "models" / "comparisons.csv")
-    row = comp[(comp.outcome == "switches_per_hour") & (comp.term == "cohort[T.teen]")].iloc[0]
+    row = comp[(comp.outcome == "switches_per_hour") & (comp.term == "cohort[teen]")].iloc[0]
     # log-scale rows are reported as rate ratios exp(b) with exp(CI)
     ratio, low, high = (math.exp(row[c]) for c in ("estimate", "ci_low", "ci_high"))
     headline = text[text.index('id="headline"'):text.index('id="figures"')]
     assert f"teen vs adult, rate ratio {ratio:.2f}" in headline
     assert f"95% CI {low:.2f}–{high:.2f}" in headline
     assert f"FDR-adjusted p = {row.p_fdr:.3f}" in headline
-    assert "Intercept" not in headline
+    assert "Intercept" not in headline and "var(participant)" not in headline
+    assert "eda lowpass: butterworth" in text  # a method key named as the run reported it
 
 
 def test_methods_references_qc_privacy_and_appendix_are_present(page):
     _, text = page
     methods = text[text.index('id="methods"'):text.index('id="qc"')]
     assert "at most 3 unattended seconds" in methods  # [switching] max_gap_s default
-    for ref in ("Benjamini, Y. &amp; Hochberg", "Bates, D.", "Kaplan, E. L. &amp; Meier",
+    for ref in ("Benjamini &amp; Hochberg (1995)", "Bates et al. 2015", "Kaplan, E. L. &amp; Meier",
                 "Okabe, M. &amp; Ito", "Landis, J. R. &amp; Koch"):
         assert ref in methods
     assert "11 of 12" not in methods

@@ -29,9 +29,10 @@ def test_methods_follow_the_resolved_configuration(fixture_run, tmp_path):
     assert "q = 0.1" in text and "adjusting for birth_year" in text
     assert "reference cohort 'adult'" in text
     # each method that ran is named with its numbered reference
-    n = methods.references.index("A. Author (2001). A dwell paper. J Dwell 1:1–2.") + 1
-    assert f"km_pooled [{n}]" in text
-    assert any(r.startswith("Benjamini, Y.") for r in methods.references)
+    n = methods.references.index("km pooled: A. Author (2001). A dwell paper. J Dwell 1:1–2.") + 1
+    assert f"km pooled [{n}]" in text
+    assert any("Benjamini & Hochberg (1995)" in r for r in methods.references)
+    assert "eda lowpass: butterworth" in text  # a bare method key is named, not cited
     assert len(methods.references) == len(set(methods.references))
 
 

@@ -55,17 +55,16 @@ def dwell_curves(run: RunFiles, pal: Palette) -> Figure:
     cohorts = [c for c in run.cohorts if c in set(b["cohort"])]
     top = float(np.nanpercentile(b["duration"], 99))
 
-    chart = alt.Chart(data(curve)).mark_line(interpolate="step-after", strokeWidth=2.6,
+    width = int(P.WIDTH / max(len(cohorts), 1)) - 20
+    chart = alt.Chart(data(curve)).mark_line(interpolate="step-after", strokeWidth=2.4,
                                              clip=True).encode(
         x=alt.X("time_s:Q", title="dwell time (s, log scale)",
                 scale=alt.Scale(type="log", domain=[start, max(top, start * 10)], nice=False)),
         y=alt.Y("survival:Q", title="share of bouts still going", axis=alt.Axis(format="%"),
                 scale=alt.Scale(domain=[0, 1])),
         color=alt.Color("platform:N", scale=alt.Scale(**pal.platform_scale()), title="platform"),
-        strokeDash=alt.StrokeDash("cohort:N", scale=alt.Scale(**pal.cohort_dash_scale()),
-                                  title="cohort"),
-        detail="cohort:N",
-    ).properties(width=P.WIDTH, height=400)
+    ).properties(width=width, height=380).facet(
+        column=alt.Column("cohort:N", sort=cohorts, title=None))
 
     pooled = []
     for code, g in b.groupby("platform"):
@@ -84,7 +83,7 @@ def dwell_curves(run: RunFiles, pal: Palette) -> Figure:
                     f"{fmt.short(r.median_s) + ' s' if fmt.is_num(r.median_s) else 'not reached'}"
                     f" (n = {r.bouts})" for r in med.itertuples())
     caption = ("Share of attention bouts still going after each dwell time, by platform "
-               "(colour) and cohort (line dash). Bouts cut by a session edge, an uncoded gap or "
+               "(colour), one panel per cohort. Bouts cut by a session edge, an uncoded gap or "
                "invalid signal are right-censored.")
     method = (f"Kaplan–Meier product-limit curves of bout length, bouts pooled within "
               f"platform and cohort ({detail}). Medians: {per}.")

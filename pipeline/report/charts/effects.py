@@ -1,4 +1,4 @@
-"""(g) Forest plot of every model effect in comparisons.csv."""
+"""(g) Forest plot of the model effects in comparisons.csv."""
 
 from __future__ import annotations
 
@@ -12,34 +12,32 @@ from pipeline.report.charts._common import Figure, Missing, data, ratio_ticks
 from pipeline.report.palette import Palette
 from pipeline.report.run_files import RunFiles
 
-ROW_PX = 34
+ROW_PX = 24
+STATUS = {"yes": P.ESTIMATE_COLOUR, "no": "#FFFFFF"}
 
 
-def _panel(df: pd.DataFrame, ratio: bool) -> alt.LayerChart:
-    finite = df[["shown_low", "shown_high", "shown"]].stack()
-    finite = finite[finite.apply(fmt.is_num)]
+def _panel(df: pd.DataFrame, ratio: bool, unit: str) -> alt.LayerChart:
+    finite = pd.to_numeric(df[["shown_low", "shown_high", "shown"]].stack(), errors="coerce")
+    finite = finite[finite.notna()]
     null = 1.0 if ratio else 0.0
     lo, hi = min(finite.min(), null), max(finite.max(), null)
     if ratio:
-        domain = [lo / 1.15, hi * 1.15]
+        domain = [lo / 1.12, hi * 1.12]
+        xs = alt.Scale(type="log", domain=domain, nice=False)
+        axis = alt.Axis(values=ratio_ticks(domain), title="ratio (log scale)")
     else:
         pad = (hi - lo) * 0.08 or 1.0
         domain = [lo - pad, hi + pad]
-    xs = (alt.Scale(type="log", domain=domain, nice=False) if ratio
-          else alt.Scale(type="linear", domain=domain, nice=False, zero=False))
-    title = ("ratio, log scale (rows on the log scale of their model)" if ratio
-             else "difference on the outcome's scale")
-    y = alt.Y("label:N", sort=list(df["label"]), title=None,
-              axis=alt.Axis(labelLimit=420))
+        xs = alt.Scale(type="linear", domain=domain, nice=False, zero=False)
+        axis = alt.Axis(title=f"difference ({unit})" if unit else "difference", tickCount=6)
+    y = alt.Y("label:N", sort=list(df["label"]), title=None, axis=alt.Axis(labelLimit=520))
     base = alt.Chart(data(df)).encode(y=y)
-    axis = alt.Axis(values=ratio_ticks(domain)) if ratio else alt.Axis()
     rule = base.mark_rule(strokeWidth=2.2, color=P.ESTIMATE_COLOUR).encode(
-        x=alt.X("shown_low:Q", scale=xs, title=title, axis=axis), x2="shown_high:Q")
-    dot = base.mark_point(shape="circle", size=150, strokeWidth=2,
+        x=alt.X("shown_low:Q", scale=xs, axis=axis), x2="shown_high:Q")
+    dot = base.mark_point(shape="circle", size=130, strokeWidth=2,
                           color=P.ESTIMATE_COLOUR).encode(
         x=alt.X("shown:Q", scale=xs),
-        fill=alt.Fill("fdr:N", scale=alt.Scale(domain=["yes", "no"],
-                                                range=[P.ESTIMATE_COLOUR, "#FFFFFF"]),
+        fill=alt.Fill("fdr:N", scale=alt.Scale(domain=list(STATUS), range=list(STATUS.values())),
                       title="FDR-significant"),
         tooltip=[alt.Tooltip("label:N", title="effect"),
                  alt.Tooltip("shown:Q", title="estimate", format=".3f"),
@@ -54,30 +52,48 @@ def _panel(df: pd.DataFrame, ratio: bool) -> alt.LayerChart:
 
 def forest(run: RunFiles, pal: Palette) -> Figure:
     comp = run.table("comparisons")
-    effs = F.ranked(F.effects(comp))
-    if not effs:
-        raise Missing("models/comparisons.csv has no effect besides intercepts")
+    all_effects = F.effects(comp)
+    if not all_effects:
+        raise Missing("models/comparisons.csv has no effect besides intercepts and variances")
+    family = [e for e in all_effects if e.in_fdr_family]
+    shown = F.ranked(family or all_effects)
     ref = run.reference_cohort
     q = float((run.config.get("models") or {}).get("fdr_q", 0.05))
+    levels = {e.cohort_level() or dict(F.term_parts(e.term)).get("cohort") for e in shown} - {None}
+    compact = len(levels) == 1  # one contrast: name it once, in the caption
+    contrast = f"{next(iter(levels))} vs {ref}" if compact else ""
+    labels = [f"{F.outcome_label(e.outcome)}: {e.short_term_label()}" if compact
+              else e.label(ref) for e in shown]
     df = pd.DataFrame({
-        "label": [e.label(ref) for e in effs], "ratio": [e.ratio for e in effs],
-        "shown": [e.shown for e in effs], "shown_low": [e.shown_low for e in effs],
-        "shown_high": [e.shown_high for e in effs], "p_fdr": [e.p_fdr for e in effs],
-        "fdr": ["yes" if e.significant(q) else "no" for e in effs]})
-    # a label must be unique on the axis: add the model where two rows coincide
-    dup = df["label"].duplicated(keep=False)
-    df.loc[dup, "label"] = [f"{lab} [{e.model}]" for lab, e, d in zip(df["label"], effs, dup) if d]
-    panels = [_panel(df[df["ratio"] == r], r) for r in (True, False) if (df["ratio"] == r).any()]
-    chart = panels[0] if len(panels) == 1 else alt.vconcat(*panels, spacing=30).resolve_scale(
-        x="independent")
-    k = sum(e.significant(q) for e in effs)
-    top = F.strongest(effs)
-    finding = f"{k} of {len(effs)} model effects hold after FDR correction (q = {q:g})"
+        "label": labels, "ratio": [e.ratio for e in shown],
+        "unit": [e.unit for e in shown],
+        "shown": [e.shown for e in shown], "shown_low": [e.shown_low for e in shown],
+        "shown_high": [e.shown_high for e in shown], "p_fdr": [e.p_fdr for e in shown],
+        "fdr": ["yes" if e.significant(q) else "no" for e in shown]})
+    dup = df["label"].duplicated(keep=False)  # a label must be unique on its axis
+    df.loc[dup, "label"] = [f"{lab} [{e.model}]" for lab, e, d in zip(df["label"], shown, dup)
+                            if d]
+    groups = list(dict.fromkeys(zip(df["ratio"], df["unit"])))
+    groups.sort(key=lambda g: not g[0])  # ratios first
+    panels = [_panel(df[(df["ratio"] == r) & (df["unit"] == u)], r, u) for r, u in groups]
+    chart = panels[0] if len(panels) == 1 else alt.vconcat(*panels, spacing=10).resolve_scale(
+        x="independent", fill="shared")
+    k = sum(e.significant(q) for e in shown)
+    top = F.strongest(shown)
+    if family:
+        finding = f"{k} of {len(shown)} tested model effects hold after FDR correction (q = {q:g})"
+    else:
+        finding = f"{len(shown)} model effects; none was adjusted for the false discovery rate"
     detail = f"smallest adjusted p: {top.claim(ref)} ({top.statistics()})"
-    caption = ("Every model effect with its 95% confidence interval; filled: significant after "
-               "Benjamini–Hochberg false-discovery-rate correction. Ratios (log-scale models) "
-               "and differences are drawn on separate axes; dashed: no effect.")
-    models = sorted({e.model for e in effs})
+    left = len(all_effects) - len(shown)
+    caption = ((f"Cohort: {contrast}. " if compact else "") +
+               "The model effects tested with false-discovery-rate control, with 95% confidence "
+               "intervals; filled: significant after Benjamini–Hochberg correction. One axis per "
+               "unit (ratios of log-scale models on a log axis); dashed: no effect."
+               + (f" {left} further descriptive effects (outside the tested family) are in the "
+                  "appendix table models/comparisons.csv." if left else ""))
+    models = sorted({e.model for e in shown})
     method = (f"Estimates, intervals and p-values as written to models/comparisons.csv by the "
-              f"models stage ({', '.join(models)}); {len(effs)} effects, intercepts left out.")
+              f"models stage ({', '.join(models)}); {len(shown)} effects shown, intercepts and "
+              f"variance components left out.")
     return Figure("effects", chart, finding, detail, caption, method, from_model=True)

@@ -9,8 +9,7 @@ import pandas as pd
 from pipeline.report import findings as F
 from pipeline.report import numbers as fmt
 from pipeline.report import palette as P
-from pipeline.report.charts._common import (STUDENT, Figure, Missing, data, mean_ci,
-                                            ratio_ticks, spread)
+from pipeline.report.charts._common import Figure, Missing, data, ratio_ticks, spread
 from pipeline.report.palette import Palette
 from pipeline.report.run_files import RunFiles
 
@@ -124,117 +123,83 @@ def _domain(df: pd.DataFrame, null: float, ratio: bool) -> list[float]:
 
 
 # ------------------------------------------------------------- switch-locked arousal
-LAG_COLUMNS = ("lag_s", "offset_s", "relative_s", "time_s", "t_s")
-VALUE_COLUMNS = ("arousal_mean", "mean_arousal", "arousal", "mean")
-
-
-def switch_locked_curve(table: pd.DataFrame, lag: str, value: str) -> pd.DataFrame:
-    """Mean arousal per lag (and cohort) with its 95% CI across participants.
-
-    Rows of one participant are averaged first, so a participant with many switches
-    does not outweigh the others; the interval is the Student-t interval of the
-    participant means.
-    """
-    keys = ["cohort"] if "cohort" in table.columns else []
-    t = table[keys + ["participant_id", lag, value]].copy()
-    t[value] = pd.to_numeric(t[value], errors="coerce")
-    per = t.groupby(keys + ["participant_id", lag], as_index=False)[value].mean()
-    rows = []
-    for k, g in per.groupby(keys + [lag]):
-        k = k if isinstance(k, tuple) else (k,)
-        m, lo, hi, n = mean_ci(g[value])
-        rows.append(dict(zip(keys + [lag], k), mean=m, low=lo, high=hi, n=n))
-    return pd.DataFrame(rows).rename(columns={lag: "lag_s"})
+def _pre_window(run: RunFiles) -> int | None:
+    pre = (run.config.get("models") or {}).get("switch_locked_pre_s")
+    return int(pre) if fmt.is_num(pre) else None
 
 
 def switch_locked(run: RunFiles, pal: Palette) -> Figure:
+    """Arousal around switches against the pseudo-switch baseline, per cohort.
+
+    Reads the cohort rows of metrics/switch_locked.csv (the trajectory around real
+    switches with its interval, and around pseudo-switches, whose interval is the
+    baseline band) and the pre-switch test of models/switch_locked_test.csv.
+    """
     table = run.table("switch_locked")
-    lag = run.pick("switch_locked", *LAG_COLUMNS)
-    value = run.pick("switch_locked", *VALUE_COLUMNS)
-    if "participant_id" in table.columns:
-        curve = switch_locked_curve(table, lag, value)
-        n_people = table["participant_id"].nunique()
-    else:
-        cols = {lag: "lag_s", value: "mean"}
-        for a, b in (("ci_low", "low"), ("ci_high", "high")):
-            if a in table.columns:
-                cols[a] = b
-        curve = table.rename(columns=cols)
-        n_people = int(table["n_participants"].max()) if "n_participants" in table else None
-    curve = curve[np.isfinite(curve["mean"].astype(float))]
-    if curve.empty:
-        raise Missing("metrics/switch_locked.csv has no finite arousal values")
-    has_cohort = "cohort" in curve.columns
-    cohorts = [c for c in run.cohorts if has_cohort and c in set(curve["cohort"])]
-
-    base_lo, base_hi, base_text = _baseline(run, table, curve, lag)
+    level = "cohort" if (table["level"] == "cohort").any() else "all"
+    t = table[table["level"] == level].copy()
+    if t.empty:
+        raise Missing("metrics/switch_locked.csv has no cohort-level or all-participant rows")
+    if level == "all":
+        t["cohort"] = "all participants"
+    cohorts = [c for c in run.cohorts if c in set(t["cohort"])] or ["all participants"]
     x = alt.X("lag_s:Q", title="seconds from switch")
-    layers = []
-    if base_lo is not None:
-        layers.append(alt.Chart(data(pd.DataFrame({"low": [base_lo], "high": [base_hi]})))
-                      .mark_rect(color=P.BAND, opacity=0.7)
-                      .encode(y=alt.Y("low:Q"), y2="high:Q"))
-    enc = {"strokeDash": alt.StrokeDash("cohort:N", scale=alt.Scale(**pal.cohort_dash_scale()),
-                                        title="cohort")} if has_cohort else {}
-    if "low" in curve.columns:
-        band_enc = ({"opacity": alt.value(0.25),
-                     "color": alt.Color("cohort:N", scale=alt.Scale(**pal.cohort_scale()),
-                                        legend=None)} if has_cohort else {})
-        layers.append(alt.Chart(data(curve)).mark_area(
-            color=P.NEUTRAL, opacity=0.25, invalid="break-paths-filter-domains").encode(
-            x=x, y=alt.Y("low:Q"), y2="high:Q", **band_enc))
-    layers.append(alt.Chart(data(curve)).mark_line(
-        color=P.ESTIMATE_COLOUR, strokeWidth=2.5).encode(
-        x=x, y=alt.Y("mean:Q", title="arousal (z)"), **enc))
-    layers.append(alt.Chart(data(pd.DataFrame({"x": [0]}))).mark_rule(
-        color=P.NEUTRAL, strokeDash=[4, 4]).encode(x="x:Q"))
-    chart = alt.layer(*layers).properties(width=P.WIDTH, height=380)
+    band = alt.Chart().mark_area(color=P.BAND, opacity=0.9).encode(
+        x=x, y=alt.Y("baseline_ci_low:Q"), y2="baseline_ci_high:Q")
+    pseudo = alt.Chart().mark_line(color=P.NEUTRAL, strokeDash=[5, 3], strokeWidth=1.6).encode(
+        x=x, y=alt.Y("arousal_pseudo_z:Q"))
+    ci = alt.Chart().mark_area(color=P.NEUTRAL, opacity=0.35).encode(
+        x=x, y=alt.Y("switch_ci_low:Q"), y2="switch_ci_high:Q")
+    line = alt.Chart().mark_line(color=P.ESTIMATE_COLOUR, strokeWidth=2.4).encode(
+        x=x, y=alt.Y("arousal_switch_z:Q", title="arousal (z)"),
+        tooltip=[alt.Tooltip("lag_s:Q", title="s from switch"),
+                 alt.Tooltip("arousal_switch_z:Q", title="switches", format=".3f"),
+                 alt.Tooltip("arousal_pseudo_z:Q", title="pseudo-switches", format=".3f")])
+    zero = alt.Chart().mark_rule(color=P.NEUTRAL, strokeDash=[2, 2]).encode(
+        x=alt.datum(0))
+    layers = [band, pseudo, ci, line, zero]
+    pre = _pre_window(run)
+    if pre:
+        layers.append(alt.Chart().mark_rule(color=P.NEUTRAL, strokeDash=[2, 2]).encode(
+            x=alt.datum(-pre)))
+    width = int(P.WIDTH / max(len(cohorts), 1)) - 20
+    chart = alt.layer(*layers, data=data(t)).properties(width=width, height=340).facet(
+        column=alt.Column("cohort:N", sort=cohorts, title=None))
 
-    pooled = curve.groupby("lag_s")["mean"].mean()
-    peak_lag = float(pooled.idxmax())
-    peak = float(pooled.max())
-    finding = (f"Arousal peaks at {fmt.auto(peak)} SD, {fmt.short(abs(peak_lag))} s "
-               f"{'after' if peak_lag > 0 else 'before' if peak_lag < 0 else 'at'} the switch"
-               if peak_lag != 0 else f"Arousal peaks at the switch ({fmt.auto(peak)} SD)")
-    if base_hi is not None:
-        finding += (", above the baseline band" if peak > base_hi
-                    else ", within the baseline band")
-    detail = base_text
-    n_text = f"{n_people} participants" if n_people else "participants"
-    caption = ("Mean arousal around each switch (0 = the switch) with its 95% confidence "
-               "interval; grey band: the baseline." + (" Line dash: cohort." if has_cohort else ""))
-    method = (f"Arousal aligned on each switch and averaged within participants, then across "
-              f"{n_text}; the interval is the Student-t interval of the participant means. "
-              f"{base_text}")
-    refs = [STUDENT]
-    return Figure("switch_locked", chart, finding, detail, caption, method, refs)
-
-
-def _baseline(run: RunFiles, table: pd.DataFrame, curve: pd.DataFrame, lag: str):
-    """Baseline band (low, high, description) from the table, else its pre-switch part."""
-    for lo_c, hi_c in (("baseline_low", "baseline_high"), ("baseline_ci_low", "baseline_ci_high")):
-        if lo_c in table.columns and hi_c in table.columns:
-            lo = float(pd.to_numeric(table[lo_c], errors="coerce").mean())
-            hi = float(pd.to_numeric(table[hi_c], errors="coerce").mean())
-            if np.isfinite(lo) and np.isfinite(hi):
-                return lo, hi, (f"Baseline band {fmt.auto(lo)} to {fmt.auto(hi)} SD, "
-                                "as written by the switch-locked stage.")
-    if "baseline" in table.columns:
-        flag = table["baseline"].astype(str).str.lower().isin(["true", "1"])
-        window = table.loc[flag, lag]
+    test = _switch_locked_test(run)
+    window = f"the {pre} s" if pre else "the seconds"
+    if test is not None:
+        finding = (f"Over {window} before a switch, arousal {test['direction']} relative to "
+                   f"pseudo-switches (change {fmt.num(test['change_z'], 3)} z)")
+        detail = (f"slope {fmt.num(test['slope_z_per_s'], 4)} z/s, 95% CI "
+                  f"{fmt.interval(test['ci_low'], test['ci_high'], 4)}; "
+                  f"{fmt.p_value(test['p_value'])}; {int(test['n_participants'])} participants")
     else:
-        lags = np.sort(curve["lag_s"].unique())
-        pre = lags[lags < 0]
-        if pre.size < 2:
-            return None, None, "No baseline band: the table has no pre-switch seconds."
-        window = pre[: max(1, pre.size // 3)]
-    sel = curve[curve["lag_s"].isin(np.asarray(window, dtype=float))]
-    if sel.empty:
-        return None, None, "No baseline band: no rows fall in the baseline window."
-    m, lo, hi, n = mean_ci(sel["mean"])
-    if not np.isfinite(lo):
-        return None, None, "No baseline band: too few baseline seconds."
-    w = np.asarray(window, dtype=float)
-    return lo, hi, (f"Baseline band: 95% interval of the mean arousal from "
-                    f"{fmt.short(w.min())} to {fmt.short(w.max())} s ({fmt.auto(lo)} to "
-                    f"{fmt.auto(hi)} SD).")
+        diff = t.groupby("lag_s")["arousal_switch_z"].mean() - \
+            t.groupby("lag_s")["arousal_pseudo_z"].mean()
+        lag = float(diff.abs().idxmax())
+        finding = (f"Largest gap to pseudo-switches: {fmt.num(diff.loc[lag])} z at "
+                   f"{fmt.short(lag)} s from the switch")
+        detail = "no pre-switch test: models/switch_locked_test.csv was not written"
+    n_sw = (pd.to_numeric(t["n_switches"], errors="coerce") if "n_switches" in t.columns
+            else pd.Series(dtype=float))
+    n_text = (f"{fmt.count(n_sw.groupby(t['cohort']).max().sum())} switches"
+              if n_sw.notna().any() else "the switches")
+    caption = ("Mean arousal around switches (black, 95% interval dark grey) and around "
+               "pseudo-switches at random times (dashed; its 95% interval is the light grey "
+               "baseline band), per cohort; 0 is the switch"
+               + (f", the dotted line {pre} s before it opens the tested window." if pre else "."))
+    method = (f"Switch-locked trajectories as written to metrics/switch_locked.csv "
+              f"({level} rows, {n_text}); pre-switch test from models/switch_locked_test.csv. "
+              f"{detail}.")
+    return Figure("switch_locked", chart, finding, detail, caption, method)
+
+
+def _switch_locked_test(run: RunFiles) -> dict | None:
+    try:
+        test = run.table("switch_locked_test", ["scope", "slope_z_per_s", "ci_low", "ci_high",
+                                               "change_z", "p_value", "direction"])
+    except Missing:
+        return None
+    rows = test[test["scope"] == "all"]
+    return rows.iloc[0].to_dict() if len(rows) else None

@@ -132,15 +132,20 @@ def _glance(prs, run: RunFiles) -> None:
         lines.append(f"Usable after quality control: {int(usable)} of {len(run.tables['qc'])}")
     left = MARGIN + width + Inches(0.4)
     _text(slide, lines, left, Inches(1.6), SLIDE_W - left - MARGIN, Inches(5), size=BODY_PT)
+    slide.notes_slide.notes_text_frame.text = (
+        "Participants, sessions and hours per cohort from metrics/sessions.csv (hours coded: "
+        "seconds with media codes; multi-platform hours: seconds with two or more platforms "
+        "in view). Sensors: channels with values in the per-second timelines. "
+        f"{len(run.tables['sessions'])} sessions in all.")
 
 
 def _chart_slide(prs, c: ChartFiles) -> None:
     f = c.figure
     slide = prs.slides.add_slide(prs.slide_layouts[LAYOUT_TITLE_ONLY])
     _title(slide, f.finding, size=TITLE_PT if len(f.finding) <= 70 else 24)
-    _text(slide, [f.detail], MARGIN, Inches(1.4), SLIDE_W - 2 * MARGIN, Inches(0.5),
+    _text(slide, [f.detail], MARGIN, Inches(1.45), SLIDE_W - 2 * MARGIN, Inches(0.5),
           size=DETAIL_PT, colour=MUTED)
-    top, bottom = Inches(1.95), Inches(0.25)
+    top, bottom = Inches(2.05), Inches(0.2)
     box_w, box_h = SLIDE_W - 2 * MARGIN, SLIDE_H - top - bottom
     w, h = png_size(c.slide_png)
     scale = min(box_w / w, box_h / h)
@@ -162,6 +167,9 @@ def _closing(prs, run: RunFiles, omitted: dict[str, str]) -> None:
                  "session second by second. Share it only within the study's consent and "
                  "ethics approval.")
     _text(slide, lines, MARGIN, Inches(1.6), SLIDE_W - 2 * MARGIN, Inches(5.4), size=BODY_PT)
+    slide.notes_slide.notes_text_frame.text = (
+        "Methods, with references, are generated from the run's resolved configuration in "
+        "report.html; the deck and the page are rebuilt with `screenweave report OUT`.")
 
 
 def build_deck(run: RunFiles, charts: list[ChartFiles], omitted: dict[str, str],

@@ -241,8 +241,9 @@ class Effect:
         what = outcome_label(self.outcome)
         return f"{what[:1].upper()}{what[1:]}: {self.term_label(reference)}, {self.number()}"
 
-    def evidence(self, q: float) -> str:
-        """Interval, p-values, n and the verdict after FDR correction."""
+    def evidence(self, q: float, full_note: bool = True) -> str:
+        """Interval, p-values, n and the verdict after FDR correction (and the model's
+        note, in full or as a pointer to the comparisons table)."""
         if not self.in_fdr_family:
             verdict = "not part of the false-discovery-rate family (descriptive)"
         elif self.significant(q):
@@ -253,7 +254,8 @@ class Effect:
         if self.converged is False:
             text += " The model did not converge: treat this estimate with caution."
         if self.note:
-            text += f" Note: {self.note}."
+            text += (f" Note: {self.note}." if full_note
+                     else " The model has a note (see models/comparisons.csv in the appendix).")
         return text
 
     def sentence(self, reference: str, q: float) -> str:

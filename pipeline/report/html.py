@@ -122,7 +122,7 @@ def headline_items(run: RunFiles, charts: list[ChartFiles]) -> list[str]:
         effs = F.ranked(F.effects(run.tables["comparisons"]))
         for e in effs[:MAX_HEADLINES]:
             items.append(f"<li><strong>{escape(e.claim(run.reference_cohort))}</strong>; "
-                         f"{escape(e.evidence(q))}</li>")
+                         f"{escape(e.evidence(q, full_note=False))}</li>")
         if len(effs) > MAX_HEADLINES:
             items.append(f"<li>{len(effs) - MAX_HEADLINES} further model effects are in the "
                          f"forest plot and in the appendix table models/comparisons.csv.</li>")

@@ -48,10 +48,10 @@ FLAG = "#D55E00"  # a QC flag (vermillion, shared with no meaning in QC charts)
 
 FONT = "DejaVu Sans, Liberation Sans, Arial, Helvetica, sans-serif"
 
-#: Sizes in CSS pixels at 1x. Charts are drawn about 960 px wide and shown on a
-#: 13.3-inch slide, where 15 px labels read like 18-20 pt text.
+#: Sizes in CSS pixels at 1x. Charts are drawn about 1000-1400 px wide and shown on a
+#: 13.3-inch slide, where a 16 px label is about 12-14 pt.
 WIDTH = 760
-FONT_SIZE = {"title": 22, "subtitle": 16, "axis_title": 16, "label": 15, "legend": 15}
+FONT_SIZE = {"title": 24, "subtitle": 17, "axis_title": 18, "label": 16, "legend": 16}
 
 
 @dataclass(frozen=True)

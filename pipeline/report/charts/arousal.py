@@ -65,9 +65,8 @@ def state_arousal(run: RunFiles, pal: Palette) -> Figure:
     comp = (pd.to_numeric(sess["compression_ratio"], errors="coerce")
             if "compression_ratio" in sess.columns else pd.Series(dtype=float))
     comp = comp[np.isfinite(comp)]
-    if len(comp):
-        detail += (f"; median compression ratio (range multi / range single) "
-                   f"{fmt.num(comp.median())} over {len(comp)} sessions")
+    comp_text = (f" Median compression ratio (range multi / range single): "
+                 f"{fmt.num(comp.median())} over {len(comp)} sessions." if len(comp) else "")
     n = long.groupby("state")["session_id"].size()
     caption = ("Each point is one session's peak, trough or range of arousal in a media "
                "state, shaded by cohort; black ticks: cohort medians.")
@@ -75,7 +74,7 @@ def state_arousal(run: RunFiles, pal: Palette) -> Figure:
               "seconds, where the state has at least [arousal] min_state_minutes of them; range "
               "is their difference (study data contract §2). Session-state values: "
               + ", ".join(f"{s} {int(n.get(s, 0)) // len(MEASURES)}" for s in present)
-              + "." + model_text)
+              + "." + model_text + comp_text)
     return Figure("state_arousal", chart, finding, detail, caption, method,
                   from_model=bool(effs))
 

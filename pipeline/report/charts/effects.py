@@ -16,7 +16,7 @@ ROW_PX = 24
 STATUS = {"yes": P.ESTIMATE_COLOUR, "no": "#FFFFFF"}
 
 
-def _panel(df: pd.DataFrame, ratio: bool, unit: str) -> alt.LayerChart:
+def _panel(df: pd.DataFrame, ratio: bool, unit: str, width: int) -> alt.LayerChart:
     finite = pd.to_numeric(df[["shown_low", "shown_high", "shown"]].stack(), errors="coerce")
     finite = finite[finite.notna()]
     null = 1.0 if ratio else 0.0
@@ -46,8 +46,23 @@ def _panel(df: pd.DataFrame, ratio: bool, unit: str) -> alt.LayerChart:
                  alt.Tooltip("p_fdr:Q", title="FDR p", format=".3f")])
     nullrule = alt.Chart(data(pd.DataFrame({"x": [null]}))).mark_rule(
         strokeDash=[5, 4], color=P.NEUTRAL).encode(x=alt.X("x:Q", scale=xs))
-    return alt.layer(nullrule, rule, dot).properties(width=P.WIDTH - 300,
-                                                     height=ROW_PX * len(df))
+    return alt.layer(nullrule, rule, dot).properties(width=width, height=ROW_PX * len(df))
+
+
+def _columns(sizes: list[int]) -> list[list[int]]:
+    """Split panels (in order) into one or two columns of about equal height, so a long
+    forest keeps a slide's landscape shape."""
+    total = sum(sizes)
+    if len(sizes) < 3 or total <= 10:
+        return [list(range(len(sizes)))]
+    run, cut = 0, len(sizes) - 1
+    for i, n in enumerate(sizes):
+        run += n + 2  # a panel's axis is worth about two rows
+        if run >= (total + 2 * len(sizes)) / 2:
+            cut = i + 1
+            break
+    cut = min(max(cut, 1), len(sizes) - 1)
+    return [list(range(cut)), list(range(cut, len(sizes)))]
 
 
 def forest(run: RunFiles, pal: Palette) -> Figure:
@@ -75,9 +90,13 @@ def forest(run: RunFiles, pal: Palette) -> Figure:
                             if d]
     groups = list(dict.fromkeys(zip(df["ratio"], df["unit"])))
     groups.sort(key=lambda g: not g[0])  # ratios first
-    panels = [_panel(df[(df["ratio"] == r) & (df["unit"] == u)], r, u) for r, u in groups]
-    chart = panels[0] if len(panels) == 1 else alt.vconcat(*panels, spacing=10).resolve_scale(
-        x="independent", fill="shared")
+    subsets = [df[(df["ratio"] == r) & (df["unit"] == u)] for r, u in groups]
+    columns = _columns([len(d) for d in subsets])
+    width = P.WIDTH - 300 if len(columns) == 1 else 250
+    panels = [_panel(d, r, u, width) for d, (r, u) in zip(subsets, groups)]
+    stacks = [alt.vconcat(*[panels[i] for i in col], spacing=10) for col in columns]
+    chart = (stacks[0] if len(stacks) == 1 else alt.hconcat(*stacks, spacing=30))
+    chart = chart.resolve_scale(x="independent", fill="shared")
     k = sum(e.significant(q) for e in shown)
     top = F.strongest(shown)
     if family:

@@ -165,9 +165,8 @@ def session_timeline(run: RunFiles, pal: Palette, session: str | None = None) ->
     rate_text = (f" ({fmt.auto(rate)} per multi-platform hour)" if fmt.is_num(rate) else "")
     finding = (f"Session {label}: several platforms in view {fmt.pct(multi_share)} of coded "
                f"time, {fmt.count(row['switches'])} switches{rate_text}")
-    n_att = int((rects["kind"] == "attended").sum()) if len(rects) else 0
-    detail = (f"{fmt.auto(coded_h * 60)} coded minutes of {fmt.auto(duration_min)}; "
-              f"{n_att} stretches of attention drawn")
+    detail = (f"participant {pid} ({row['cohort']}), session {sid}: {fmt.auto(coded_h * 60)} "
+              f"of {fmt.auto(duration_min)} minutes coded")
     caption = ("Bottom: one lane per platform, shaded where the platform is in view and solid "
                "where it is attended; grey lane: uncoded seconds. Top: arousal on the same "
                "time axis; grey bands: no valid skin conductance.")

@@ -157,7 +157,7 @@ class EdaSettings(StrictModel):
         "forwards and backwards, so the effective order doubles)."
     )
     analysis_hz: float = Field(
-        16.0, gt=0, description="Rate (Hz) at which decomposition and SCR scoring run, after "
+        8.0, gt=0, description="Rate (Hz) at which decomposition and SCR scoring run, after "
         "the low-pass; recordings sampled faster are decimated for these steps only."
     )
     min_valid_share: float = Field(
@@ -202,7 +202,7 @@ class DecompositionSettings(StrictModel):
     method: str = Field(
         "highpass",
         description="Tonic/phasic decomposition: 'highpass' (fast, default for long "
-        "recordings), 'median' (fast) or 'convex' (model-based, windowed).",
+        "recordings) or 'convex' (model-based, windowed).",
     )
     highpass_hz: float = Field(
         0.05, gt=0, description="Cut-off (Hz) of the zero-phase high-pass giving the phasic "
@@ -210,10 +210,6 @@ class DecompositionSettings(StrictModel):
     )
     highpass_order: int = Field(
         2, ge=1, le=8, description="Order of that Butterworth high-pass."
-    )
-    median_window_s: float = Field(
-        8.0, gt=0, description="Window (s) of the running median giving the tonic component "
-        "(method 'median')."
     )
     convex: ConvexSettings = Field(
         default_factory=ConvexSettings, description="Settings of method 'convex'."
@@ -227,6 +223,10 @@ class ScrSettings(StrictModel):
     min_amplitude_us: float = Field(
         0.01, gt=0, description="Smallest SCR amplitude counted (µS); also the smallest dip "
         "that separates two responses."
+    )
+    min_rise_time_s: float = Field(
+        0.25, ge=0, description="A rise from onset to peak quicker than this (s) is a spike "
+        "or the low-pass filter's ringing at a steep step, not an SCR."
     )
     max_rise_time_s: float = Field(
         4.0, gt=0, description="A rise from onset to peak slower than this (s) is a change "

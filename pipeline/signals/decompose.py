@@ -10,17 +10,10 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import ndimage
-
 from pipeline.config import DecompositionSettings
 from pipeline.errors import ConfigError
 from pipeline.signals.convex import decompose_convex
 from pipeline.signals.filters import butterworth, context_samples, filtfilt_blocks
-
-#: The running median of method 'median' is evaluated on a subsample at about this
-#: rate (the tonic level changes over tens of seconds) and interpolated back.
-MEDIAN_RATE_HZ = 4.0
-
 
 @dataclass
 class Decomposition:
@@ -50,27 +43,6 @@ def phasic_by_highpass(c: np.ndarray, fs: float, cfg: DecompositionSettings) -> 
     return Decomposition(tonic, phasic, [])
 
 
-def tonic_by_median(c: np.ndarray, fs: float, cfg: DecompositionSettings) -> Decomposition:
-    """Tonic component by a running median over ``median_window_s``; the phasic
-    component is the rest (SCRs are brief next to the window, so the median passes
-    over them).
-
-    References
-    ----------
-    Braithwaite, J. J., Watson, D. G., Jones, R., & Rowe, M. (2013). A guide for
-    analysing electrodermal activity (EDA) & skin conductance responses (SCRs) for
-    psychological experiments. Technical report, University of Birmingham (median
-    smoothing).
-    """
-    n = c.size
-    step = max(1, int(round(fs / MEDIAN_RATE_HZ)))
-    sub = c[::step]
-    width = max(1, int(round(cfg.median_window_s * fs / step)) | 1)
-    med = ndimage.median_filter(sub, size=width, mode="nearest")
-    tonic = np.interp(np.arange(n, dtype=float), np.arange(sub.size, dtype=float) * step, med)
-    return Decomposition(tonic, c - tonic, [])
-
-
 def decomposition_by_convex_optimisation(c: np.ndarray, fs: float,
                                          cfg: DecompositionSettings) -> Decomposition:
     """Tonic spline plus a sparse non-negative driver through a Bateman response,
@@ -90,7 +62,6 @@ def decomposition_by_convex_optimisation(c: np.ndarray, fs: float,
 
 DECOMPOSITION_METHODS: dict[str, DecomposeFn] = {
     "highpass": phasic_by_highpass,                      # fast default; Braithwaite 2013
-    "median": tonic_by_median,                           # fast; Braithwaite 2013
     "convex": decomposition_by_convex_optimisation,      # Greco et al. 2016
 }
 

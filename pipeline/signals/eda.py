@@ -39,21 +39,26 @@ def decimate_cic(x: np.ndarray, step: int) -> np.ndarray:
     if step == 1:
         return np.array(x, dtype=float, copy=True)
     n = x.size
-    m = (n + step - 1) // step
-    out = np.zeros(m)
-    tmp = np.empty(m)
-    for j in range(-(step - 1), step):
-        w = (step - abs(j)) / float(step * step)
-        # outputs i whose tap i * step + j falls inside x; the rest take an end value
-        i_lo = -(j // step) if j < 0 else 0
-        i_lo = min(i_lo, m)
-        i_hi = min(m - 1, (n - 1 - j) // step)
-        if i_hi >= i_lo:
-            part = tmp[: i_hi - i_lo + 1]
-            np.multiply(x[i_lo * step + j: i_hi * step + j + 1: step], w, out=part)
-            out[i_lo: i_hi + 1] += part
-        out[:i_lo] += w * x[0]
-        out[i_hi + 1:] += w * x[-1]
+    k = step
+    full, rest = divmod(n, k)
+    m = full + (1 if rest else 0)
+    # output i = (sum_j (k - j) x[i k + j] + sum_j j x[(i - 1) k + j]) / k^2, j = 0..k-1
+    current = (k - np.arange(k)).astype(float)
+    previous = np.arange(k, dtype=float)
+    out = np.empty(m)
+    lag = np.empty(m)
+    if full:
+        blocks = x[: full * k].reshape(full, k)
+        out[:full] = np.einsum("ij,j->i", blocks, current)
+        behind = np.einsum("ij,j->i", blocks[: full if rest else full - 1], previous)
+        lag[1: behind.size + 1] = behind
+    if rest:
+        tail = np.concatenate((x[full * k:], np.full(k - rest, x[-1])))
+        out[full] = tail @ current
+    lag[0] = x[0] * previous.sum()  # before the start: the first value
+    out += lag
+    out /= k * k
+    # past the end: the last value (only the last output reaches past it)
     return out
 
 

@@ -36,9 +36,6 @@ TEXT: dict[tuple[str, str], tuple[str, str]] = {
     ("eda_decomposition", "highpass"): (
         "The phasic component was obtained with a 0.05 Hz zero-phase high-pass filter, "
         "the tonic component being the remainder.", BRAITHWAITE),
-    ("eda_decomposition", "median"): (
-        "The tonic component was estimated by running-median smoothing, the phasic "
-        "component being the remainder.", BRAITHWAITE),
     ("eda_decomposition", "convex"): (
         "Tonic and phasic components were estimated by convex optimisation (a sparse "
         "non-negative driver through a Bateman impulse response plus a spline tonic "

@@ -5,10 +5,13 @@ component from a trough (its onset) to the next peak. The extrema of the phasic
 series are first simplified so that a dip or bump smaller than the minimum
 amplitude does not split or create a response (the smallest such wiggle is removed,
 repeatedly, which keeps every extremum whose rise or fall is at least that size).
-Onset and peak are then measured on the cleaned skin conductance: amplitude is the
-peak value minus the onset value, rise time the time between them, half-recovery
-time the time from the peak until the signal is back down to onset + half the
-amplitude.
+The onset is the foot of the rise (the last sample before the peak that is not yet
+rising and lies near the trough). Amplitude is measured on the cleaned skin conductance: the peak
+value minus the baseline, the onset value continued with the slope of the second
+before the onset (so a drifting tonic level or the recovery of a previous response
+neither adds to nor takes from it); rise time is the time from onset to peak,
+half-recovery time the time from the peak until the signal is back down to the
+onset value + half the amplitude.
 """
 
 from __future__ import annotations
@@ -97,7 +100,8 @@ def simplify_extrema(v: np.ndarray, h: float) -> np.ndarray:
         if idx.size < 4:
             return keep
         d = np.abs(np.diff(v[idx]))
-        j = np.arange(1, d.size - 1)  # pairs (j, j+1) not touching an end point
+        d[0] = d[-1] = np.inf  # pairs touching an end point are never removed
+        j = np.arange(1, d.size - 1)  # pairs (j, j+1)
         dj = d[1:-1]
         cand = (dj < h) & (dj <= d[:-2]) & (dj < d[2:])
         if not cand.any():
@@ -124,8 +128,9 @@ def scrs_by_trough_to_peak(phasic: np.ndarray, cleaned: np.ndarray, valid: np.nd
         Rate of the analysis grid (Hz).
     cfg : ScrSettings
         ``min_amplitude_us`` (the smallest response, and the smallest dip that
-        separates two responses), ``max_rise_time_s`` (a slower rise is a change of
-        tonic level) and ``max_half_recovery_s``.
+        separates two responses), ``min_rise_time_s`` and ``max_rise_time_s`` (a
+        quicker rise is a spike or filter ringing, a slower one a change of tonic
+        level) and ``max_half_recovery_s``.
 
     References
     ----------
@@ -144,16 +149,112 @@ def scrs_by_trough_to_peak(phasic: np.ndarray, cleaned: np.ndarray, valid: np.nd
     # rises: an extremum followed by a higher one, not starting at the first sample
     # (onset before the recording) nor ending at the last (not yet at its peak)
     rises = np.flatnonzero(v[1:] > v[:-1])
-    rises = rises[(ext[rises] > 0) & (ext[rises + 1] < phasic.size - 1)]
-    onset, peak = ext[rises], ext[rises + 1]
-    amp = cleaned[peak] - cleaned[onset]
+    rises = rises[ext[rises + 1] < phasic.size - 1]
+    trough, peak = ext[rises], ext[rises + 1]
+    onset = _rise_start(phasic, trough, peak, h, fs, cfg.max_rise_time_s)
+    begun = onset > 0
+    trough, peak, onset = trough[begun], peak[begun], onset[begun]
+    slope = _baseline_slope(cleaned, onset, np.r_[0, peak[:-1]], fs)
+    peak = _refine_peak(cleaned, onset, peak, slope, fs)
+    amp = cleaned[peak] - (cleaned[onset] + slope * (peak - onset) / fs)
     bad_cum = np.concatenate(([0], np.cumsum(~valid)))
     touches_invalid = (bad_cum[peak + 1] - bad_cum[onset]) > 0
-    quick = (peak - onset) <= cfg.max_rise_time_s * fs
-    ok = (amp >= h) & quick & ~touches_invalid & ((phasic[peak] - phasic[onset]) >= h)
+    rise = (peak - onset) / fs
+    quick = (rise <= cfg.max_rise_time_s) & (rise >= cfg.min_rise_time_s)
+    upward = cleaned[peak] > cleaned[onset]  # an SCR is a rise of the conductance itself
+    ok = (amp >= h) & upward & quick & ~touches_invalid & ((phasic[peak] - phasic[onset]) >= h)
     onset, peak, amp = onset[ok], peak[ok], amp[ok]
     half = _half_recovery(cleaned, valid, onset, peak, amp, fs, cfg.max_half_recovery_s)
     return ScrIndices(onset, peak, amp, (peak - onset) / fs, half)
+
+
+def _rise_start(ph: np.ndarray, trough: np.ndarray, peak: np.ndarray, h: float, fs: float,
+                max_rise_s: float) -> np.ndarray:
+    """Where each rise really begins.
+
+    A trough found after merging small wiggles may lie far back in a flat stretch.
+    The onset is the last sample between trough and peak that is not yet rising (a
+    local minimum, or rising slower than h per second) and still within
+    max(10 % of the rise, h / 2) of the trough: the foot of the rise. Searched back
+    from the peak over max_rise_s + 1 s; the trough itself if nothing qualifies.
+    """
+    k = peak.size
+    if k == 0:
+        return trough
+    n = ph.size
+    width = int(np.ceil((max_rise_s + 1.0) * fs)) + 1
+    thr = ph[trough] + np.maximum(0.1 * (ph[peak] - ph[trough]), h / 2.0)
+    back = np.arange(1, width + 1)
+    onset = trough.copy()
+    chunk = max(1, 1_000_000 // width)
+    for a in range(0, k, chunk):
+        b = min(k, a + chunk)
+        pos = peak[a:b, None] - back[None, :]
+        inside = pos >= trough[a:b, None]
+        np.clip(pos, 1, n - 2, out=pos)
+        here = ph[pos]
+        ahead = ph[pos + 1]
+        not_rising = (here <= ph[pos - 1]) & (here <= ahead)
+        not_rising |= (ahead - here) * fs <= h
+        ok = inside & not_rising & (here <= thr[a:b, None])
+        first = ok.argmax(axis=1)
+        has = ok.any(axis=1)
+        onset[a:b] = np.where(has, peak[a:b] - back[first], trough[a:b])
+    return onset
+
+
+#: The peak of the conductance itself is looked for this far around the phasic peak (s).
+PEAK_SEARCH_S = (0.5, 1.0)
+
+
+def _refine_peak(c: np.ndarray, onset: np.ndarray, peak: np.ndarray, slope: np.ndarray,
+                 fs: float) -> np.ndarray:
+    """The peak on the cleaned conductance above its extrapolated baseline, within
+    0.5 s before to 1 s after the phasic peak (a high-pass moves the phasic peak a
+    little earlier), never before the onset nor at or past the next onset."""
+    k = peak.size
+    if k == 0:
+        return peak
+    n = c.size
+    before, after = (int(round(v * fs)) for v in PEAK_SEARCH_S)
+    lags = np.arange(-before, after + 1)
+    nxt = np.r_[onset[1:], n]
+    pos = peak[:, None] + lags[None, :]
+    ok = (pos > onset[:, None]) & (pos < nxt[:, None]) & (pos < n)
+    pos = np.clip(pos, 0, n - 1)
+    above = c[pos] - (c[onset][:, None] + slope[:, None] * (pos - onset[:, None]) / fs)
+    above = np.where(ok, above, -np.inf)
+    best = above.argmax(axis=1)
+    return np.where(ok.any(axis=1), pos[np.arange(k), best], peak)
+
+
+#: Length of the stretch before an onset whose slope is extrapolated under the rise (s).
+BASELINE_S = 1.0
+
+
+def _baseline_slope(c: np.ndarray, onset: np.ndarray, previous_peak: np.ndarray,
+                    fs: float) -> np.ndarray:
+    """Least-squares slope (µS/s) of c over the second before each onset, not reaching
+    back past the previous response's peak (0 where fewer than 3 samples remain)."""
+    k = onset.size
+    width = max(3, int(round(BASELINE_S * fs)))
+    if k == 0:
+        return np.zeros(0)
+    lag = np.arange(-width, 1)  # width + 1 samples ending at the onset
+    pos = onset[:, None] + lag[None, :]
+    use = (pos >= np.maximum(previous_peak, 0)[:, None]) & (pos >= 0)
+    pos = np.maximum(pos, 0)
+    y = c[pos]
+    w = use.astype(float)
+    cnt = w.sum(axis=1)
+    tx = lag[None, :] * w
+    mx = tx.sum(axis=1) / np.maximum(cnt, 1)
+    my = (y * w).sum(axis=1) / np.maximum(cnt, 1)
+    sxy = ((lag[None, :] - mx[:, None]) * (y - my[:, None]) * w).sum(axis=1)
+    sxx = (((lag[None, :] - mx[:, None]) ** 2) * w).sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = np.where((cnt >= 3) & (sxx > 0), sxy / sxx * fs, 0.0)
+    return slope
 
 
 def _first_recovery(c: np.ndarray, valid: np.ndarray, peak: np.ndarray, limit: np.ndarray,

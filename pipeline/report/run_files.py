@@ -34,6 +34,10 @@ TABLE_PATHS: dict[str, str] = {
     "power": "power/power.csv",
 }
 
+#: Other places a table may be found (first that exists wins): `screenweave power --out
+#: OUT` writes OUT/power.csv.
+ALTERNATE_PATHS: dict[str, tuple[str, ...]] = {"power": ("power.csv",)}
+
 #: Columns a table must have for the report to use it (CONTRACT §3).
 REQUIRED_COLUMNS: dict[str, tuple[str, ...]] = {
     "sessions": ("participant_id", "session_id", "cohort", "coded_hours", "media_hours",
@@ -231,6 +235,9 @@ def read_run(out_dir: Path) -> RunFiles:
     missing: dict[str, str] = {}
     for name, rel in TABLE_PATHS.items():
         path = out_dir / rel
+        for alt in ALTERNATE_PATHS.get(name, ()):
+            if not path.is_file() and (out_dir / alt).is_file():
+                path, rel = out_dir / alt, alt
         if not path.is_file():
             missing[name] = f"{rel} was not written by this run"
             continue

@@ -75,3 +75,11 @@ def test_missing_tables_leave_their_charts_out_with_the_reason(tmp_path):
     rate = next(f for f in figures if f.name == "switch_rate")
     # without a model the switch-rate chart says so instead of showing an estimate
     assert rate.detail.startswith("no model estimate") and not rate.from_model
+
+
+def test_power_table_written_by_the_power_command_is_found(tmp_path):
+    # `screenweave power --out OUT` writes OUT/power.csv; OUT/power/power.csv also works
+    out = write_run(tmp_path / "out")
+    (out / "power" / "power.csv").rename(out / "power.csv")
+    run = read_run(out)
+    assert run.has("power") and "power" not in run.missing

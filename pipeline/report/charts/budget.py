@@ -57,18 +57,17 @@ def time_budget(run: RunFiles, pal: Palette) -> Figure:
     y = alt.Y("group:N", sort=order, title=None, scale=alt.Scale(domain=order))
     yo = alt.YOffset("cohort:N", sort=cohorts, scale=alt.Scale(domain=cohorts))
     xs = alt.Scale(domain=[0, 1], nice=False, clamp=True)
-    bars = alt.Chart(data(summary)).mark_bar(stroke="#000000", strokeWidth=0.6).encode(
+    dots = alt.Chart(data(summary)).mark_point(filled=True, size=190, stroke="#000000",
+                                               strokeWidth=1.2, opacity=1).encode(
         y=y, yOffset=yo,
         x=alt.X("share:Q", title="mean share of coded time (95% CI across participants)",
                 scale=xs, axis=alt.Axis(format="%", tickCount=5)),
         color=alt.Color("cohort:N", scale=alt.Scale(**pal.cohort_scale()), title="cohort"),
         tooltip=[alt.Tooltip("cohort:N"), alt.Tooltip("group:N"),
                  alt.Tooltip("share:Q", format=".1%"), alt.Tooltip("n:Q", title="participants")])
-    err = alt.Chart(data(summary)).encode(y=y, yOffset=yo, x=alt.X("low:Q", scale=xs),
-                                          x2="high:Q")
-    halo = err.mark_rule(color="#FFFFFF", strokeWidth=5)  # keeps the bar visible on dark grey
-    errs = err.mark_rule(color=P.ESTIMATE_COLOUR, strokeWidth=2)
-    chart = alt.layer(bars, halo, errs).properties(
+    errs = alt.Chart(data(summary)).mark_rule(color=P.ESTIMATE_COLOUR, strokeWidth=2).encode(
+        y=y, yOffset=yo, x=alt.X("low:Q", scale=xs), x2="high:Q")
+    chart = alt.layer(errs, dots).properties(
         width=P.WIDTH - 120, height=max(len(order) * (18 * len(cohorts) + 22), 160))
 
     main = (summary[summary["group"] != NOTHING].groupby("group")["share"].mean()
@@ -78,11 +77,12 @@ def time_budget(run: RunFiles, pal: Palette) -> Figure:
     top = str(main.index[0])
     per = summary[summary["group"] == top].set_index("cohort")["share"]
     finding = (f"Attention to {top}: " +
-               ", ".join(f"{fmt.pct(per[c])} of coded time in {c}" for c in cohorts if c in per))
+               ", ".join(f"{c} {fmt.pct(per[c])}" for c in cohorts if c in per) +
+               " of coded time")
     n = shares.groupby("cohort")["participant_id"].nunique()
     detail = "; ".join(f"{c}: {n[c]} participants" for c in cohorts if c in n)
     caption = ("Mean share of each participant's coded time spent attending each platform "
-               "group, by cohort, with its 95% confidence interval; the last row is the "
+               "group, by cohort (grey level), with its 95% confidence interval; the last row is the "
                "coded time in which nothing was attended.")
     method = ("Attended seconds per platform group (summed over the group's platforms, from "
               "metrics/platforms.csv) divided by the participant's coded seconds over all "

@@ -49,9 +49,26 @@ def power_curve(run: RunFiles, pal: Palette) -> Figure:
         finding = (f"Power stays below {fmt.pct(target)} up to "
                    f"{int(pw['participants_per_cohort'].max())} participants per cohort "
                    f"(at most {fmt.pct(pw['power'].max())})")
-    settings = ", ".join(f"{k} = {v}" for k, v in cfg.items()) if isinstance(cfg, dict) else ""
-    detail = f"{len(pw)} sample sizes simulated" + (f"; settings: {settings}" if settings else "")
+    first = pw.iloc[0]
+    bits = []
+    if "rate_ratio" in pw.columns:
+        bits.append(f"switch-rate ratio {fmt.short(first['rate_ratio'])}"
+                    + (f" (simulated: {fmt.num(first['true_rate_ratio'])})"
+                       if fmt.is_num(first.get("true_rate_ratio")) else ""))
+    if "sessions_per_participant" in pw.columns and "session_hours" in pw.columns:
+        bits.append(f"{int(first['sessions_per_participant'])} sessions of "
+                    f"{fmt.short(first['session_hours'])} h per participant")
+    if "n_simulations" in pw.columns:
+        bits.append(f"{int(first['n_simulations'])} simulated studies per size")
+    if "alpha" in pw.columns:
+        bits.append(f"α = {fmt.short(first['alpha'])}")
+    if not bits and isinstance(cfg, dict) and cfg:
+        bits = [f"{k} = {v}" for k, v in cfg.items()]
+    detail = "; ".join(bits) if bits else f"{len(pw)} sample sizes simulated"
+    interval = str(first["interval"]).replace("_", "-") if "interval" in pw.columns else ""
     caption = (f"Share of simulated studies in which the cohort effect on the switch rate is "
-               f"detected, with its 95% interval; dashed: the {fmt.pct(target)} target.")
-    method = f"Simulation-based power from power/power.csv; {detail}."
+               f"significant, with its 95% {interval + ' ' if interval else ''}interval; "
+               f"dashed: the {fmt.pct(target)} target.")
+    method = (f"Simulation-based power (`screenweave power`) at {len(pw)} sample sizes; "
+              f"{detail}.")
     return Figure("power", chart, finding, detail, caption, method, [COHEN_1988])

@@ -87,7 +87,8 @@ print(time.perf_counter() - t0, hours, len(files))
 """
 
 #: NeuroKit2 is run on at most this many recordings of a study (evenly spaced); its
-#: time for the whole study is extrapolated by recording hours, and the JSON says so.
+#: time for the whole study is extrapolated by the number of recordings (all of one
+#: length), and the JSON says so.
 NK_MAX_FILES = 40
 
 
@@ -120,7 +121,7 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     nk_s, nk_hours, nk_files = map(float, nk["output"].strip().splitlines()[-1].split())
     row["neurokit2_files_measured"] = int(nk_files)
     row["neurokit2_hours_measured"] = nk_hours
-    row["neurokit2_eda_process_s"] = nk_s * participant_hours / nk_hours
+    row["neurokit2_eda_process_s"] = nk_s * n_sessions / nk_files
     row["neurokit2_extrapolated"] = int(nk_files) < n_sessions
     row["run_vs_neurokit2_time"] = row["wall_s_workers2"] / row["neurokit2_eda_process_s"]
     return row

@@ -102,3 +102,28 @@ def test_missing_tables_leave_the_chart_out_and_say_why(tmp_path):
     assert "`screenweave agree` has not been run" in text
     idx = pd.read_csv(out / "charts" / "index.csv", keep_default_na=False)
     assert idx.set_index("chart").loc["power", "detail"].startswith("left out:")
+
+
+def test_a_run_with_only_session_metrics_still_gets_a_report(tmp_path):
+    # the report must not invent what the run did not write: everything else is left out
+    import json
+
+    from report_run import write_run
+
+    from pipeline.report import build_report
+
+    full = write_run(tmp_path / "full", hostile=False, optional=False)
+    out = tmp_path / "out"
+    (out / "metrics").mkdir(parents=True)
+    (out / "metrics" / "sessions.csv").write_bytes((full / "metrics/sessions.csv").read_bytes())
+    manifest = json.loads((full / "manifest.json").read_text())
+    manifest.pop("methods")
+    (out / "manifest.json").write_text(json.dumps(manifest))
+    paths = build_report(out)
+    assert {p.name for p in paths if p.suffix == ".png"} == {"switch_rate.png"}
+    text = (out / "report.html").read_text()
+    assert text.count("was not written by this run") >= 8
+    assert "no model estimate" in text
+    from pptx import Presentation
+
+    assert len(Presentation(out / "deck.pptx").slides) == 4  # title, glance, 1 chart, closing

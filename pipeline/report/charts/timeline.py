@@ -119,10 +119,13 @@ def session_timeline(run: RunFiles, pal: Palette, session: str | None = None) ->
         raise Missing("timeline/ holds no per-session Parquet files")
     pid, sid, why = choose_session(sessions, set(run.timeline_files), session)
     tl = run.timeline(f"{pid}__{sid}")
-    need = [c for c in ("second", "coded", "in_view", "attended", "arousal") if c not in tl]
+    need = [c for c in ("second", "coded", "in_view", "attended") if c not in tl]
     if need:
         raise Missing(f"timeline/{pid}__{sid}.parquet has no column {', '.join(need)}")
     tl = _full_seconds(tl)
+    if "arousal" not in tl.columns:
+        tl["arousal"] = np.nan
+    has_arousal = bool(pd.to_numeric(tl["arousal"], errors="coerce").notna().any())
     duration_min = len(tl) / 60.0
     rects, lanes = lane_table(tl, pal)
     trace, step = arousal_trace(tl)
@@ -155,7 +158,8 @@ def session_timeline(run: RunFiles, pal: Palette, session: str | None = None) ->
                 title=None, axis=alt.Axis(labels=False, ticks=False)),
         y=alt.Y("arousal:Q", title="arousal (z)"))
     arousal_chart = alt.layer(gap_layer, line).properties(width=P.WIDTH, height=150)
-    chart = alt.vconcat(arousal_chart, lanes_chart, spacing=6).resolve_scale(x="shared")
+    chart = (alt.vconcat(arousal_chart, lanes_chart, spacing=6).resolve_scale(x="shared")
+             if has_arousal else lanes_chart)
 
     row = sessions[(sessions["participant_id"] == pid) & (sessions["session_id"] == sid)].iloc[0]
     coded_h = float(row["coded_hours"])
@@ -167,9 +171,11 @@ def session_timeline(run: RunFiles, pal: Palette, session: str | None = None) ->
                f"time, {fmt.count(row['switches'])} switches{rate_text}")
     detail = (f"participant {pid} ({row['cohort']}), session {sid}: {fmt.auto(coded_h * 60)} "
               f"of {fmt.auto(duration_min)} minutes coded")
-    caption = ("Bottom: one lane per platform, shaded where the platform is in view and solid "
-               "where it is attended; grey lane: uncoded seconds. Top: arousal on the same "
-               "time axis; grey bands: no valid skin conductance.")
+    caption = ("One lane per platform, shaded where the platform is in view and solid where it "
+               "is attended; grey lane: uncoded seconds. "
+               + ("Above: arousal on the same time axis; grey bands: no valid skin conductance."
+                  if has_arousal else "No arousal trace: this session has no valid skin "
+                  "conductance."))
     source = (run.config.get("arousal") or {}).get("source", "eda")
     trace_note = (f" The arousal trace is drawn as {step}-second means." if step > 1 else "")
     method = (f"Per-second timeline of session {label}, {why}. Arousal is the "

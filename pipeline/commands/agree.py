@@ -59,3 +59,7 @@ def agree(
                               len(tables["alpha.csv"])):
         typer.echo(line)
     typer.echo(f"wrote {target.path(FOLDER)}")
+    from pipeline.report.refresh import refresh_if_run
+
+    if refresh_if_run(out):
+        typer.echo(f"report rebuilt with the agreement section: {out / 'report.html'}")

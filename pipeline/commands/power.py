@@ -148,3 +148,7 @@ def power(
     for line in power_lines(table):
         typer.echo(line)
     typer.echo(f"wrote {path}" + (f" and {chart}" if chart else ""))
+    from pipeline.report.refresh import refresh_if_run
+
+    if refresh_if_run(out):
+        typer.echo(f"report rebuilt with the power curve: {out / 'report.html'}")

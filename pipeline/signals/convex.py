@@ -28,8 +28,10 @@ from scipy.linalg import cho_factor, cho_solve, cho_solve_banded, cholesky_bande
 from pipeline.config import ConvexSettings
 from pipeline.errors import StageError
 
-#: Interior-point stopping tolerance (relative residuals and duality measure).
+#: Interior-point stopping tolerances: relative residuals, and the duality gap
+#: (which bounds how far the objective is from its optimum) relative to ||y||^2.
 TOLERANCE = 1e-7
+GAP_TOLERANCE = 1e-9
 
 
 def bateman_arma(fs: float, tau_rise_s: float, tau_decay_s: float
@@ -100,13 +102,14 @@ class ConvexFit:
     driver: np.ndarray
     iterations: int
     converged: bool
+    objective: float = float("nan")  # value of the programme at the solution
 
 
 def solve_window(y: np.ndarray, fs: float, cfg: ConvexSettings) -> ConvexFit:
     """Solve the cvxEDA quadratic programme on one window of standardised SC."""
     n = y.size
     if n < 8:
-        return ConvexFit(np.zeros(n), y.copy(), np.zeros(n), 0, True)
+        return ConvexFit(np.zeros(n), y.copy(), np.zeros(n), 0, True, 0.0)
     ma, ar = bateman_arma(fs, cfg.tau_rise_s, cfg.tau_decay_s)
     other, n_spl = tonic_regressors(n, fs, cfg.knot_s)
     n_o = other.shape[1]
@@ -144,7 +147,7 @@ def solve_window(y: np.ndarray, fs: float, cfg: ConvexSettings) -> ConvexFit:
         mu = float(s @ z) / m
         if (max(np.abs(rd_q).max(), np.abs(rd_o).max()) <= TOLERANCE * scale
                 and np.abs(rp).max() <= TOLERANCE * (1.0 + np.abs(gq).max())
-                and mu <= TOLERANCE):
+                and mu * m <= GAP_TOLERANCE * (1.0 + abs(float(y @ y)))):
             converged = True
             break
         w = z / s
@@ -196,7 +199,11 @@ def solve_window(y: np.ndarray, fs: float, cfg: ConvexSettings) -> ConvexFit:
     phasic[2:] = _apply(ma, q)
     driver = np.zeros(n)
     driver[2:] = _apply(ar, q)
-    return ConvexFit(phasic, other @ o, driver, it, converged)
+    tonic = other @ o
+    resid = phasic + tonic - y
+    objective = float(0.5 * resid @ resid + cfg.alpha * driver.sum()
+                      + 0.5 * (ridge * o * o).sum())
+    return ConvexFit(phasic, tonic, driver, it, converged, objective)
 
 
 def decompose_convex(c: np.ndarray, fs: float, cfg: ConvexSettings

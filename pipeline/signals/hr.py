@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
+from scipy import ndimage
 
 from pipeline.config import HrSettings
 from pipeline.errors import ConfigError
@@ -27,7 +28,9 @@ ArtifactFn = Callable[[np.ndarray, HrSettings], np.ndarray]
 def _both_neighbours(deviates_prev: np.ndarray, deviates_next: np.ndarray) -> np.ndarray:
     """An interval is an artifact when it deviates from both neighbours (from its only
     neighbour at either end): an ectopic beat and its compensatory pause are caught,
-    the normal intervals around them are not."""
+    the normal intervals around them are not. Each rule also applies its limit
+    against the running median of the 11 surrounding intervals, which catches a run
+    of two similar artifacts (an interval split by an extra beat)."""
     n = deviates_prev.size + 1
     out = np.zeros(n, dtype=bool)
     if n < 2:
@@ -38,9 +41,19 @@ def _both_neighbours(deviates_prev: np.ndarray, deviates_next: np.ndarray) -> np
     return out
 
 
+#: Intervals in the running median that serves as the local reference.
+LOCAL_BEATS = 11
+
+
+def _local_reference(ibi_ms: np.ndarray) -> np.ndarray:
+    """Running median of the surrounding intervals: the local normal interval."""
+    size = min(LOCAL_BEATS, ibi_ms.size if ibi_ms.size % 2 else ibi_ms.size - 1)
+    return ndimage.median_filter(ibi_ms, size=max(1, size), mode="nearest")
+
+
 def ectopic_by_relative_change(ibi_ms: np.ndarray, cfg: HrSettings) -> np.ndarray:
-    """Intervals that differ by more than ``malik_max_change`` (20 %) from their
-    neighbours.
+    """Intervals that differ by more than ``malik_max_change`` (20 %) from both
+    neighbours, or from the running median of the surrounding intervals.
 
     ``deviates_prev[i]`` compares interval i+1 with interval i, relative to interval
     i, as in the rule's usual statement |RR(i+1) - RR(i)| > 0.2 RR(i).
@@ -57,7 +70,9 @@ def ectopic_by_relative_change(ibi_ms: np.ndarray, cfg: HrSettings) -> np.ndarra
     change = np.abs(np.diff(ibi_ms))
     dev_prev = change > cfg.malik_max_change * ibi_ms[:-1]  # interval i+1 vs i
     dev_next = change > cfg.malik_max_change * ibi_ms[1:]   # interval i vs i+1
-    return _both_neighbours(dev_prev, dev_next)
+    ref = _local_reference(ibi_ms)
+    off_local = np.abs(ibi_ms - ref) > cfg.malik_max_change * ref
+    return _both_neighbours(dev_prev, dev_next) | off_local
 
 
 def berntson_criterion(ibi_ms: np.ndarray) -> float:
@@ -72,8 +87,9 @@ def berntson_criterion(ibi_ms: np.ndarray) -> float:
 
 
 def ectopic_by_berntson(ibi_ms: np.ndarray, cfg: HrSettings) -> np.ndarray:
-    """Intervals whose differences from their neighbours exceed the criterion beat
-    difference computed from the series' own quartiles.
+    """Intervals whose differences from both neighbours (or from the running median of
+    the surrounding intervals) exceed the criterion beat difference computed from the
+    series' own quartiles.
 
     References
     ----------
@@ -86,7 +102,8 @@ def ectopic_by_berntson(ibi_ms: np.ndarray, cfg: HrSettings) -> np.ndarray:
     crit = berntson_criterion(ibi_ms)
     change = np.abs(np.diff(ibi_ms))
     big = change > crit
-    return _both_neighbours(big, big)
+    off_local = np.abs(ibi_ms - _local_reference(ibi_ms)) > crit
+    return _both_neighbours(big, big) | off_local
 
 
 HR_ARTIFACT_METHODS: dict[str, ArtifactFn] = {

@@ -22,10 +22,10 @@ def _platform_list(timeline: pd.DataFrame, bouts: pd.DataFrame,
                    platform_groups: dict[str, str]) -> list[str]:
     coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
     seen = set(platform_groups)
-    in_view = timeline.loc[coded, "in_view"].dropna().astype(str)
-    seen.update(c for c in in_view.str.split(";").explode().unique() if isinstance(c, str) and c)
-    attended = timeline.loc[coded, "attended"].dropna().astype(str)
-    seen.update(c for c in attended.unique() if c)
+    # a session has few distinct in-view combinations: split each once
+    for cell in timeline.loc[coded, "in_view"].dropna().unique():
+        seen.update(c for c in str(cell).split(";") if c)
+    seen.update(str(c) for c in timeline.loc[coded, "attended"].dropna().unique() if c)
     seen.update(bouts["platform"].astype(str).unique())
     return sorted(seen)
 
@@ -33,9 +33,16 @@ def _platform_list(timeline: pd.DataFrame, bouts: pd.DataFrame,
 def _in_view_matrix(timeline: pd.DataFrame, platforms: list[str]) -> pd.DataFrame:
     """Coded seconds x platforms, 1 where the platform is in view."""
     coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    in_view = timeline.loc[coded, "in_view"].fillna("").astype(str)
-    dummies = in_view.str.get_dummies(sep=";")
-    return dummies.reindex(columns=platforms, fill_value=0)
+    in_view = timeline.loc[coded, "in_view"].fillna("")
+    rows, combos = pd.factorize(in_view)
+    column = {p: j for j, p in enumerate(platforms)}
+    table = np.zeros((max(len(combos), 1), len(platforms)), dtype=np.int64)
+    for u, cell in enumerate(combos):  # one iteration per distinct combination
+        for code in str(cell).split(";"):
+            if code in column:
+                table[u, column[code]] = 1
+    return pd.DataFrame(table[rows] if len(rows) else np.zeros((0, len(platforms)), np.int64),
+                        columns=platforms, index=in_view.index)
 
 
 def _bout_summary(bouts: pd.DataFrame, key: pd.Series) -> pd.DataFrame:

@@ -137,3 +137,24 @@ def test_root_help_lists_commands():
     assert res.exit_code == 0
     for cmd in ("run", "check"):
         assert cmd in res.output
+
+
+@pytest.mark.slow
+def test_run_on_a_local_dask_cluster_matches_serial(study, tmp_path):
+    from distributed import LocalCluster
+
+    from pipeline.runner import run_study
+
+    run_study(study, tmp_path / "serial", workers=1, quiet=True, report=False)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=None) as cluster:
+        res = run_study(study, tmp_path / "dask", cluster=cluster.scheduler_address,
+                        quiet=True, report=False)
+    assert res.sessions_ok == 2
+    for rel in ("metrics/sessions.csv", "metrics/states.csv", "metrics/platforms.csv",
+                "metrics/bouts.csv", "qc/sessions.csv", "models/comparisons.csv"):
+        a = (tmp_path / "serial" / rel).read_bytes()
+        b = (tmp_path / "dask" / rel).read_bytes()
+        assert a == b, rel  # byte-identical tables
+    pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "serial/timeline/p01__s1.parquet"),
+                                  pd.read_parquet(tmp_path / "dask/timeline/p01__s1.parquet"))

@@ -8,6 +8,8 @@ signal's scale) in a fraction of the memory, and the blocks fit the processor ca
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 from scipy import signal as sps
 
@@ -16,7 +18,13 @@ BLOCK = 1 << 18
 
 
 def butterworth(order: int, cutoff_hz: float, fs: float, btype: str) -> np.ndarray:
-    """Second-order sections of a digital Butterworth filter."""
+    """Second-order sections of a digital Butterworth filter (designs are memoised:
+    a design depends on nothing but its arguments; each caller gets its own copy)."""
+    return _design(int(order), float(cutoff_hz), float(fs), btype).copy()
+
+
+@lru_cache(maxsize=64)
+def _design(order: int, cutoff_hz: float, fs: float, btype: str) -> np.ndarray:
     return sps.butter(order, cutoff_hz, btype=btype, fs=fs, output="sos")
 
 

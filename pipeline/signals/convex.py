@@ -220,9 +220,11 @@ def decompose_convex(c: np.ndarray, fs: float, cfg: ConvexSettings
                      ) -> tuple[np.ndarray, np.ndarray, bool]:
     """Tonic and phasic components of a gap-free series, window by window.
 
-    The series is standardised with its own mean and standard deviation (so that
-    ``alpha`` and ``gamma`` mean what they mean in the paper) and the components are
-    scaled back to µS. Returns tonic, phasic and whether every window converged.
+    Each window (with its context) is standardised with its own mean and standard
+    deviation, as the paper's programme expects of a laboratory-length recording (so
+    that ``alpha`` and ``gamma`` mean what they mean there, however much the tonic
+    level wanders over hours), and the components are scaled back to µS. Returns
+    tonic, phasic and whether every window converged.
 
     References
     ----------
@@ -235,19 +237,19 @@ def decompose_convex(c: np.ndarray, fs: float, cfg: ConvexSettings
     phasic = np.empty(n)
     if n == 0:
         return tonic, phasic, True
-    mean = float(np.mean(c))
-    sd = float(np.std(c))
-    if not sd > 0:
-        tonic[:] = c
-        phasic[:] = 0.0
-        return tonic, phasic, True
     core = max(1, int(round(cfg.window_s * fs)))
     ctx = int(round(cfg.overlap_s * fs))
     all_ok = True
     for a in range(0, n, core):
         b = min(n, a + core)
         lo, hi = max(0, a - ctx), min(n, b + ctx)
-        fit = solve_window((c[lo:hi] - mean) / sd, fs, cfg)
+        seg = c[lo:hi]
+        mean, sd = float(np.mean(seg)), float(np.std(seg))
+        if not sd > 0:
+            tonic[a:b] = c[a:b]
+            phasic[a:b] = 0.0
+            continue
+        fit = solve_window((seg - mean) / sd, fs, cfg)
         all_ok &= fit.converged
         tonic[a:b] = fit.tonic[a - lo: b - lo] * sd + mean
         phasic[a:b] = fit.phasic[a - lo: b - lo] * sd

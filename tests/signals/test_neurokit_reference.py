@@ -42,6 +42,9 @@ def _match_to_windows(times: np.ndarray, starts: np.ndarray) -> int:
 
 @pytest.mark.parametrize("scr_number,seed", [(10, 1), (20, 2), (40, 3)])
 def test_scr_count_and_onsets_agree_with_neurokit(scr_number, seed):
+    # (the default decomposition; the convex one assumes Bateman-shaped responses, which
+    # eda_simulate's sub-second rises are not: it is checked on Bateman responses in
+    # test_scr.py and test_decompose.py)
     eda = _simulate(scr_number, seed)
     t = np.arange(eda.size) / FS
     ours = process_recording(recording(t, eda), SignalSettings()).scrs

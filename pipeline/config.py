@@ -130,8 +130,9 @@ class EdaSettings(StrictModel):
         0.001, ge=0, description="Largest range (max - min, µS) of a flat-line stretch."
     )
     ceiling_us: float | None = Field(
-        None, gt=0, description="The sensor's upper range end (µS); readings at it for "
-        "clip_min_s or longer are clipped. Default: the recording's own maximum."
+        None, gt=0, description="The sensor's upper range end (µS); readings held within "
+        "flat_tolerance_us of it for clip_min_s or longer are clipped. Default: the highest "
+        "level the recording holds that long, if hardly any sample lies above it."
     )
     clip_min_s: float = Field(
         2.0, gt=0, description="Readings held at the ceiling at least this long (s) are "

@@ -145,7 +145,7 @@ def _skin_conductance(x: np.ndarray, fs: float, step: int, times_a: np.ndarray,
 
     if x.size < 4 or not np.isfinite(x).any():
         notes.append("no usable skin conductance samples")
-        return nothing({"missing": 1.0, "invalid": 1.0})
+        return nothing({"missing": 1.0, "total": 1.0})
 
     # 2. artifacts
     raw = RawEda(x, fs, motion_g)

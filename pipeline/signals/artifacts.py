@@ -215,7 +215,7 @@ def assess(raw: RawEda, cfg: EdaSettings, max_interp_s: float) -> Validity:
     Validity
         ``shares`` holds, for each rule and for ``missing`` (no sample), the share of
         grid samples it flagged, plus ``interpolated`` (bridged, valid again),
-        ``transition`` (added by padding) and ``invalid`` (the final share).
+        ``transition`` (added by padding) and ``total`` (the final invalid share).
     """
     x = raw.x
     n = x.size
@@ -245,10 +245,10 @@ def assess(raw: RawEda, cfg: EdaSettings, max_interp_s: float) -> Validity:
     if n:
         shares["interpolated"] = float((re_ - rs).sum() / n)
         flagged_kept = float((e[~repair] - s[~repair]).sum() / n)
-        shares["invalid"] = np.count_nonzero(invalid) / n
-        shares["transition"] = max(0.0, shares["invalid"] - flagged_kept)
+        shares["total"] = np.count_nonzero(invalid) / n
+        shares["transition"] = max(0.0, shares["total"] - flagged_kept)
     else:
-        shares.update(interpolated=0.0, invalid=0.0, transition=0.0)
+        shares.update(interpolated=0.0, total=0.0, transition=0.0)
     return Validity(invalid=invalid, repaired=(rs, re_), masked=(ms, me), shares=shares)
 
 

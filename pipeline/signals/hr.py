@@ -179,7 +179,7 @@ def _from_intervals(time_s: np.ndarray, ibi: np.ndarray, grid_t: np.ndarray, fs:
     fill_linear(hr, s[short], e[short])
     shares = _shares(out_of_range, ectopic)
     valid = np.isfinite(hr)
-    shares["hr_invalid"] = float(1.0 - valid.mean()) if valid.size else 0.0
+    shares["hr_total"] = float(1.0 - valid.mean()) if valid.size else 0.0
     return HeartRate(hr, valid, shares, "ibi_ms")
 
 
@@ -196,5 +196,5 @@ def _from_samples(time_s: np.ndarray, hr_bpm: np.ndarray, grid_t: np.ndarray,
     hr = interp_within(grid_t, t[good], v[good], spacing + max_interp_s)
     shares = _shares(out_of_range, ectopic)
     valid = np.isfinite(hr)
-    shares["hr_invalid"] = float(1.0 - valid.mean()) if valid.size else 0.0
+    shares["hr_total"] = float(1.0 - valid.mean()) if valid.size else 0.0
     return HeartRate(hr, valid, shares, "hr_bpm")

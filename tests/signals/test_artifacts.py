@@ -54,7 +54,7 @@ def test_clean_recording_has_no_invalid_sample():
     t, x = _base()
     out = process_recording(recording(t, x), SignalSettings())
     assert out.samples["eda_valid"].all()
-    assert out.invalid_share["invalid"] == 0.0
+    assert out.invalid_share["total"] == 0.0
     assert all(out.invalid_share[r] == 0.0 for r in ARTIFACT_RULES)
 
 
@@ -159,7 +159,7 @@ def test_short_glitch_is_bridged_and_stays_valid():
     x[i] += 3.0  # a one-sample spike
     out = process_recording(recording(t, x), SignalSettings())
     assert out.invalid_share["jump"] > 0
-    assert out.invalid_share["invalid"] == 0.0
+    assert out.invalid_share["total"] == 0.0
     assert out.invalid_share["interpolated"] == pytest.approx(3 / t.size)
     near = out.samples[(out.samples["time_s"] > 119) & (out.samples["time_s"] < 121)]
     assert near["eda_us"].max() < x[i - 64: i + 64].mean() + 0.05  # no spike left
@@ -183,7 +183,7 @@ def test_shares_add_up():
     raw = RawEda(x, FS)
     v = assess(raw, EdaSettings(rules=["flat_line"]), max_interp_s=2.0)
     flagged = v.shares["flat_line"]
-    assert v.shares["invalid"] == pytest.approx(flagged + v.shares["transition"], abs=1e-9)
+    assert v.shares["total"] == pytest.approx(flagged + v.shares["transition"], abs=1e-9)
     assert v.shares["transition"] == pytest.approx(10.0 / SECONDS, abs=2 / t.size)
 
 

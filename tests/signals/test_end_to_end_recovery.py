@@ -51,7 +51,7 @@ def test_qc_reports_each_rules_share(study_run):
     root, _ = study_run
     qc = pd.read_csv(root / "out" / "qc" / "sessions.csv")
     for rule in ("missing", "out_of_range", "flat_line", "jump", "clipping", "motion",
-                 "transition", "invalid"):
+                 "transition", "total", "interpolated"):
         assert f"invalid_share_{rule}" in qc.columns
     # electrode-off stretches read 0 uS and clipped ones the range end: the rules see them
     assert (qc["invalid_share_flat_line"] > 0).any()

@@ -29,7 +29,7 @@ from pipeline.config import SignalSettings
 from pipeline.signals.artifacts import RawEda, assess, bridged
 from pipeline.signals.decompose import decompose, decomposition_method
 from pipeline.signals.eda import decimate_cic, effective_lowpass_hz, lowpass_butterworth
-from pipeline.signals.grid import make_grid, to_grid
+from pipeline.signals.grid import Grid, make_grid, to_grid
 from pipeline.signals.hr import heart_rate, hr_artifact_method
 from pipeline.signals.methods import describe_methods
 from pipeline.signals.scr import SCR_COLUMNS, scr_method, score_scrs, scr_table
@@ -63,7 +63,7 @@ def block_mean(a: np.ndarray, step: int) -> np.ndarray:
         return np.where(counts > 0, sums / np.maximum(counts, 1), np.nan)
 
 
-def motion_magnitude(rec: Recording, grid, max_interp_s: float) -> np.ndarray | None:
+def motion_magnitude(rec: Recording, grid: Grid, max_interp_s: float) -> np.ndarray | None:
     """|accelerometer magnitude - 1 g| on the grid, where all three axes are present."""
     if not all(a in rec.channels for a in ACC):
         return None

@@ -32,10 +32,10 @@ from pipeline.signals.eda import decimate_cic, effective_lowpass_hz, lowpass_but
 from pipeline.signals.grid import Grid, make_grid, to_grid
 from pipeline.signals.hr import heart_rate, hr_artifact_method
 from pipeline.signals.methods import describe_methods
-from pipeline.signals.scr import SCR_COLUMNS, scr_method, score_scrs, scr_table
+from pipeline.signals.scr import SCR_COLUMNS, score_scrs, scr_method, scr_table
 from pipeline.types import Recording, SessionSignals
 
-__all__ = ["process_recording", "describe_methods"]
+__all__ = ["describe_methods", "process_recording"]
 
 ACC = ("acc_x", "acc_y", "acc_z")
 

@@ -14,9 +14,9 @@ QC. The masks are then combined (:func:`assess`):
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import cached_property
-from typing import Callable
 
 import numpy as np
 

@@ -6,14 +6,16 @@ tonic and phasic components (µS) on the same samples.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
+
 from pipeline.config import DecompositionSettings
 from pipeline.errors import ConfigError
 from pipeline.signals.convex import decompose_convex
 from pipeline.signals.filters import butterworth, context_samples, filtfilt_blocks
+
 
 @dataclass
 class Decomposition:

@@ -11,8 +11,8 @@ across their own spacing plus at most ``max_interp_s``.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Callable
 
 import numpy as np
 from scipy import ndimage

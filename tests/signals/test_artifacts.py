@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from signal_builders import recording, settings
 
 from pipeline.config import EdaSettings, SignalSettings
 from pipeline.errors import ConfigError
 from pipeline.signals import process_recording
 from pipeline.signals.artifacts import ARTIFACT_RULES, RawEda, assess
-from signal_builders import recording, settings
 
 FS = 32.0
 SECONDS = 300.0

@@ -9,12 +9,17 @@ import numpy as np
 import pytest
 from scipy import signal as sps
 from scipy.optimize import minimize
+from signal_builders import bateman, scr_train
 
 from pipeline.config import ConvexSettings, DecompositionSettings
 from pipeline.errors import ConfigError
-from pipeline.signals.convex import bateman_arma, decompose_convex, solve_window, tonic_regressors
+from pipeline.signals.convex import (
+    bateman_arma,
+    decompose_convex,
+    solve_window,
+    tonic_regressors,
+)
 from pipeline.signals.decompose import decompose
-from signal_builders import bateman, scr_train
 
 
 def test_highpass_phasic_is_scipys_zero_phase_butterworth():

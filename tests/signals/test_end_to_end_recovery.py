@@ -4,8 +4,6 @@ every artifact rule."""
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pandas as pd
 import pytest

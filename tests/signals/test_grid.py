@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from signal_builders import recording
 
 from pipeline.config import SignalSettings
 from pipeline.signals import process_recording
 from pipeline.signals.grid import interp_within, make_grid, to_grid
-from signal_builders import recording
 
 
 def test_regular_time_axis_is_kept_as_it_is():

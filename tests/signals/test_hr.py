@@ -5,13 +5,18 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from signal_builders import recording
 
 from pipeline.config import HrSettings, SignalSettings
 from pipeline.errors import ConfigError
 from pipeline.signals import process_recording
-from pipeline.signals.hr import (berntson_criterion, ectopic_by_berntson,
-                                 ectopic_by_relative_change, flag_intervals, hr_artifact_method)
-from signal_builders import recording
+from pipeline.signals.hr import (
+    berntson_criterion,
+    ectopic_by_berntson,
+    ectopic_by_relative_change,
+    flag_intervals,
+    hr_artifact_method,
+)
 
 #: indices of the constructed artifacts in _intervals()
 ARTIFACTS = {50, 51, 120, 200, 201}

@@ -14,11 +14,10 @@ import warnings
 import neurokit2 as neurokit
 import numpy as np
 import pytest
+from signal_builders import f1_score, match_events, recording
 
 from pipeline.config import SignalSettings
 from pipeline.signals import process_recording
-from signal_builders import f1_score, match_events, recording
-
 
 FS = 32
 DURATION = 600

@@ -8,12 +8,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from signal_builders import recording, scr_train
 
 from pipeline.config import SignalSettings
 from pipeline.ingest.recordings import read_recording
 from pipeline.signals import describe_methods, process_recording
 from pipeline.signals.scr import SCR_COLUMNS
-from signal_builders import recording, scr_train
 
 DEMO = Path(__file__).resolve().parents[2] / "synthetic_diaries" / "demo"
 

@@ -5,13 +5,19 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy.optimize import brentq
+from signal_builders import (
+    bateman,
+    bateman_peak_time,
+    match_events,
+    recording,
+    scr_train,
+    settings,
+)
 
 from pipeline.config import ScrSettings
 from pipeline.errors import ConfigError
 from pipeline.signals import process_recording
 from pipeline.signals.scr import score_scrs, simplify_extrema, turning_points
-from signal_builders import (bateman, bateman_peak_time, match_events, recording, scr_train,
-                             settings)
 
 # Benedek & Kaernbach (2010), J Neurosci Methods 190:80-91: Bateman impulse response
 # with tau1 = 0.75 s (rise) and tau2 = 3.75 s (decay), the form the continuous

@@ -467,9 +467,7 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
 
     summary = [f"ran {len(ok)} of {total} sessions"
                + (f" ({cached} from cache)" if cached else "")]
-    methods: dict[str, dict] = {"signals": {}}
-    for i in ok:
-        methods["signals"].update(prepared[i].methods)
+    methods: dict[str, dict] = {"signals": _signal_methods([prepared[i].methods for i in ok])}
     summary += _describe(study, cfg, sessions, qc)
     if coder_notes:
         summary.append(f"{len(coder_notes)} session(s) coded by several coders; run uses one "
@@ -519,6 +517,22 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     outdir.json("manifest.json", manifest, "runner")
     return RunResult(out=outdir.root, sessions_total=total, sessions_ok=len(ok),
                      failures=failures, summary=summary, manifest=manifest)
+
+
+def _signal_methods(per_session: list[dict[str, str]]) -> dict[str, str]:
+    """Each signal-processing step that ran, with its method sentence and reference."""
+    from pipeline.signals.methods import describe_methods
+
+    union: dict[str, set[str]] = {}
+    for methods in per_session:
+        for step, key in methods.items():
+            union.setdefault(step, set()).add(str(key))
+    out = {}
+    for step, keys in union.items():
+        value = ";".join(sorted(keys))
+        text = " ".join(describe_methods({step: value}))
+        out[step] = text or value
+    return out
 
 
 def _headlines(lines: list[str]) -> list[str]:

@@ -147,7 +147,9 @@ class Recording:
 class SessionSignals:
     """A processed recording, still on the sensor clock.
 
-    ``samples`` has one row per (uniformly resampled) sample: time_s, eda_us (cleaned),
+    ``samples`` has one row per sample of the processed grid (the signals stage
+    resamples to a uniform grid and decimates to its kept rate, 8 Hz by default; see
+    ``sampling_rate_hz``): time_s, eda_us (cleaned),
     eda_tonic_us, eda_phasic_us, eda_valid (bool), and where present hr_bpm, hr_valid,
     motion_g. ``scrs`` has one row per SCR: onset_s, peak_s, amplitude_us, rise_time_s,
     half_recovery_s (NaN when not reached). ``invalid_share`` maps each artifact rule

@@ -14,7 +14,7 @@ from pipeline.report.run_files import RunFiles
 
 COVERAGE = ("coverage", "coverage_share", "coded_share", "coded_fraction")
 VALID = ("eda_valid_fraction", "valid_share", "signal_valid_share")
-INVALID = ("invalid_share", "invalid_signal_share", "eda_invalid_share")
+INVALID = ("invalid_share_total", "invalid_share", "invalid_signal_share", "eda_invalid_share")
 RESIDUAL = ("sync_residual_s", "sync_residual", "residual_s", "sync_rmse_s")
 
 

@@ -468,32 +468,40 @@ class Config(StrictModel):
 
 # --------------------------------------------------------------------------- loading
 def _field_names(model: type[BaseModel], loc: tuple[Any, ...]) -> list[str]:
-    """Names allowed at ``loc`` (the path of the offending key's parent)."""
+    """Names allowed at ``loc`` (the path of the offending key's parent).
+
+    List positions in ``loc`` are skipped, and ``X | None`` or ``list[X]`` annotations
+    are unwrapped to the model ``X``.
+    """
     current: Any = model
     for part in loc:
+        if isinstance(part, int):
+            continue
         fields = getattr(current, "model_fields", None)
         if not fields or part not in fields:
             return []
         ann = fields[part].annotation
-        # unwrap Optional[...] / X | None
-        args = getattr(ann, "__args__", None)
-        if args:
-            ann = next((a for a in args if isinstance(a, type) and issubclass(a, BaseModel)), ann)
+        for arg in (getattr(ann, "__args__", None) or (ann,)):
+            if isinstance(arg, type) and issubclass(arg, BaseModel):
+                ann = arg
         current = ann
     fields = getattr(current, "model_fields", None)
     return list(fields) if fields else []
 
 
-def _explain(err: ValidationError, source: str) -> ConfigError:
+def explain_validation(err: ValidationError, model: type[BaseModel], source: str,
+                       noun: str = "setting") -> ConfigError:
+    """One ConfigError naming every bad key of ``err``, with "did you mean" for typos."""
     lines = []
     hints = []
     for e in err.errors():
         loc = tuple(e["loc"])
         key = ".".join(str(p) for p in loc)
         if e["type"] == "extra_forbidden":
-            allowed = _field_names(Config, loc[:-1])
+            allowed = _field_names(model, loc[:-1])
             close = difflib.get_close_matches(str(loc[-1]), allowed, n=1)
-            msg = f"unknown setting [{'.'.join(map(str, loc[:-1])) or 'top level'}] {loc[-1]!r}"
+            parent = ".".join(map(str, loc[:-1])) or "top level"
+            msg = f"unknown {noun} [{parent}] {loc[-1]!r}"
             if close:
                 msg += f"; did you mean {close[0]!r}?"
             lines.append(msg)
@@ -501,7 +509,7 @@ def _explain(err: ValidationError, source: str) -> ConfigError:
                 hints.append(f"allowed here: {', '.join(allowed)}")
         else:
             value = e.get("input")
-            lines.append(f"setting {key} = {value!r}: {e['msg']}")
+            lines.append(f"{noun} {key or '(top level)'} = {value!r}: {e['msg']}")
     return ConfigError(f"{source}: " + "; ".join(lines), hint="; ".join(hints) or None)
 
 
@@ -510,7 +518,7 @@ def parse_config(data: dict[str, Any], source: str = "configuration") -> Config:
     try:
         return Config.model_validate(data)
     except ValidationError as err:
-        raise _explain(err, source) from None
+        raise explain_validation(err, Config, source) from None
 
 
 def read_toml(path: Path) -> dict[str, Any]:

@@ -14,7 +14,6 @@ published typical value, the field's description names the source.
 from __future__ import annotations
 
 import datetime as dt
-import difflib
 import re
 import tomllib
 from pathlib import Path
@@ -22,6 +21,7 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
+from pipeline.config import explain_validation
 from pipeline.errors import ConfigError
 
 #: Participant, session and cohort IDs follow the study data contract's ID rule.
@@ -621,23 +621,6 @@ class SynthOptions(_Strict):
 
 
 # --------------------------------------------------------------------------- loading
-def _allowed(model: type[BaseModel], loc: tuple[Any, ...]) -> list[str]:
-    current: Any = model
-    for part in loc:
-        if isinstance(part, int):
-            continue
-        fields = getattr(current, "model_fields", None)
-        if not fields or part not in fields:
-            return []
-        ann = fields[part].annotation
-        for arg in (getattr(ann, "__args__", None) or (ann,)):
-            if isinstance(arg, type) and issubclass(arg, BaseModel):
-                ann = arg
-        current = ann
-    fields = getattr(current, "model_fields", None)
-    return list(fields) if fields else []
-
-
 def options_from_dict(data: dict[str, Any], source: str = "synth options") -> SynthOptions:
     """Validate a dict (e.g. read from TOML) into :class:`SynthOptions`.
 
@@ -647,22 +630,7 @@ def options_from_dict(data: dict[str, Any], source: str = "synth options") -> Sy
     try:
         return SynthOptions.model_validate(data)
     except ValidationError as err:
-        lines, hints = [], []
-        for e in err.errors():
-            loc = tuple(e["loc"])
-            key = ".".join(str(p) for p in loc)
-            if e["type"] == "extra_forbidden":
-                allowed = _allowed(SynthOptions, loc[:-1])
-                close = difflib.get_close_matches(str(loc[-1]), allowed, n=1)
-                msg = f"unknown option {key!r}"
-                if close:
-                    msg += f"; did you mean {close[0]!r}?"
-                lines.append(msg)
-                if allowed:
-                    hints.append(f"allowed here: {', '.join(allowed)}")
-            else:
-                lines.append(f"option {key or '(top level)'}: {e['msg']}")
-        raise ConfigError(f"{source}: " + "; ".join(lines), hint="; ".join(hints) or None) from None
+        raise explain_validation(err, SynthOptions, source, noun="option") from None
 
 
 def load_options(path: Path) -> SynthOptions:

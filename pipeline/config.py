@@ -23,6 +23,17 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 from pipeline.errors import ConfigError
 
 
+def check_time_zone(name: str) -> str:
+    """``name`` if it is an IANA time zone this machine knows, else a ValueError."""
+    from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+    try:
+        ZoneInfo(name)
+    except (ZoneInfoNotFoundError, ValueError):
+        raise ValueError(f"unknown IANA time zone {name!r} (e.g. 'Europe/Berlin')") from None
+    return name
+
+
 class StrictModel(BaseModel):
     """Base of every settings section: unknown keys are errors, values are validated."""
 
@@ -51,12 +62,7 @@ class StudySettings(StrictModel):
 
     @model_validator(mode="after")
     def _known_zone(self) -> "StudySettings":
-        from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
-
-        try:
-            ZoneInfo(self.timezone)
-        except (ZoneInfoNotFoundError, ValueError):
-            raise ValueError(f"unknown IANA time zone {self.timezone!r} (e.g. 'Europe/Berlin')")
+        check_time_zone(self.timezone)
         return self
 
 

@@ -21,7 +21,7 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
-from pipeline.config import explain_validation
+from pipeline.config import check_time_zone, explain_validation
 from pipeline.errors import ConfigError
 
 #: Participant, session and cohort IDs follow the study data contract's ID rule.
@@ -584,13 +584,7 @@ class SynthOptions(_Strict):
     @field_validator("timezone")
     @classmethod
     def _zone(cls, v: str) -> str:
-        from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
-
-        try:
-            ZoneInfo(v)
-        except (ZoneInfoNotFoundError, ValueError):
-            raise ValueError(f"unknown IANA time zone {v!r}") from None
-        return v
+        return check_time_zone(v)
 
     @model_validator(mode="after")
     def _consistent(self) -> "SynthOptions":

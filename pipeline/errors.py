@@ -167,3 +167,17 @@ class ProblemCollector:
     def raise_if_any(self) -> None:
         if self.problems:
             raise InputError.from_problems(self.problems)
+
+
+def choose(registry: dict, name: str, what: str, suffix: str = ""):
+    """``registry[name]``, or a ConfigError whose hint lists the registry's keys.
+
+    The message reads ``unknown {what} {name!r}{suffix}`` (e.g. ``unknown SCR method
+    'x' in [signals.scr]``); because the choices come from the registry itself, the
+    error cannot drift from the methods that exist.
+    """
+    try:
+        return registry[name]
+    except KeyError:
+        raise ConfigError(f"unknown {what} {name!r}{suffix}",
+                          hint=f"choose one of {', '.join(sorted(registry))}") from None

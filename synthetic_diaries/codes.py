@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 from synthetic_diaries.options import CodingOptions, CohortBehaviour, UncodedOptions
 
 NONE, SINGLE, MULTI = 0, 1, 2
@@ -59,11 +59,7 @@ BOUT_DISTRIBUTIONS: dict[str, Callable[[float, float], stats.rv_continuous]] = {
 
 def bout_distribution(behaviour: CohortBehaviour, rate_multiplier: float = 1.0):
     """The (continuous) bout-length distribution of a behaviour, before rounding."""
-    try:
-        fn = BOUT_DISTRIBUTIONS[behaviour.bout_distribution]
-    except KeyError:
-        raise ConfigError(f"unknown bout distribution {behaviour.bout_distribution!r}",
-                          hint=f"choose one of {', '.join(sorted(BOUT_DISTRIBUTIONS))}") from None
+    fn = choose(BOUT_DISTRIBUTIONS, behaviour.bout_distribution, "bout distribution")
     return fn(behaviour.bout_mean_s / rate_multiplier, behaviour.bout_shape)
 
 

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 from scipy import signal as sps
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 from synthetic_diaries.codes import MULTI, NONE, STATE_NAMES
 from synthetic_diaries.options import CohortBehaviour, SynthOptions
 
@@ -45,11 +45,7 @@ SCR_SHAPES: dict[str, Callable[[float, float, float], np.ndarray]] = {
 
 def scr_kernel(shape: str, fs: float, tau_rise_s: float, tau_decay_s: float) -> np.ndarray:
     """The SCR impulse response named ``shape`` (a key of :data:`SCR_SHAPES`)."""
-    try:
-        fn = SCR_SHAPES[shape]
-    except KeyError:
-        raise ConfigError(f"unknown SCR shape {shape!r}",
-                          hint=f"choose one of {', '.join(sorted(SCR_SHAPES))}") from None
+    fn = choose(SCR_SHAPES, shape, "SCR shape")
     return fn(fs, tau_rise_s, tau_decay_s)
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 
 def value_counts_by_unit(codes: pd.DataFrame, categories: list[str] | None = None
@@ -92,10 +92,6 @@ ALPHA_METHODS = {
 
 def alpha(codes: pd.DataFrame, level: str = "nominal") -> float:
     """Krippendorff's alpha of a units-by-coders label table (NA = not coded)."""
-    try:
-        fn = ALPHA_METHODS[level]
-    except KeyError:
-        raise ConfigError(f"unknown alpha level of measurement {level!r}",
-                          hint=f"choose one of {', '.join(sorted(ALPHA_METHODS))}") from None
+    fn = choose(ALPHA_METHODS, level, "alpha level of measurement")
     counts, _ = value_counts_by_unit(codes)
     return fn(counts)

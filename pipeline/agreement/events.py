@@ -25,7 +25,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose, ConfigError
 
 #: Columns a table of switch events must have (one row per switch).
 EVENT_COLUMNS = ("time_s", "from_platform", "to_platform")
@@ -202,11 +202,7 @@ def compare_switches(a: pd.DataFrame, b: pd.DataFrame, tolerance_s: float,
         Precision, recall and F1 are NaN where their denominator is zero (no switches
         of B, of A, or of either).
     """
-    try:
-        fn = MATCHING_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown switch matching method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(MATCHING_METHODS))}") from None
+    fn = choose(MATCHING_METHODS, method, "switch matching method")
     if tolerance_s < 0:
         raise ConfigError(f"switch tolerance {tolerance_s!r} s is negative",
                           hint="[agreement] switch_tolerance_s must be 0 or more")

@@ -13,7 +13,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 
 def contingency_table(a: pd.Series | np.ndarray, b: pd.Series | np.ndarray,
@@ -103,11 +103,7 @@ KAPPA_METHODS: dict[str, Callable[[np.ndarray], float]] = {
 
 def kappa(table: np.ndarray, method: str = "cohen") -> float:
     """Chance-corrected agreement of a contingency table by the named method."""
-    try:
-        fn = KAPPA_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown kappa method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(KAPPA_METHODS))}") from None
+    fn = choose(KAPPA_METHODS, method, "kappa method")
     return fn(table)
 
 

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import ArousalSettings
-from pipeline.errors import ConfigError, StageError
+from pipeline.errors import choose, StageError
 from pipeline.types import STATES
 
 #: Flag added where arousal cannot be standardised (fewer than two valid seconds, or
@@ -50,11 +50,7 @@ AROUSAL_SOURCES: dict[str, Callable[[pd.DataFrame], pd.Series]] = {
 
 def arousal_source(timeline: pd.DataFrame, cfg: ArousalSettings) -> pd.Series:
     """The per-second signal arousal is built from (``eda_us`` or ``eda_phasic_us``)."""
-    try:
-        fn = AROUSAL_SOURCES[cfg.source]
-    except KeyError:
-        raise ConfigError(f"unknown [arousal] source {cfg.source!r}",
-                          hint=f"choose one of {', '.join(sorted(AROUSAL_SOURCES))}") from None
+    fn = choose(AROUSAL_SOURCES, cfg.source, "[arousal] source")
     return fn(timeline).astype(float)
 
 

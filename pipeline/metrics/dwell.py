@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 from statsmodels.duration.survfunc import SurvfuncRight
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 #: Tolerance for S(t) <= 0.5: the product-limit estimate is computed through logs, so
 #: a survival of exactly one half can come out as 0.5000000000000001.
@@ -118,9 +118,5 @@ DWELL_MEDIAN_METHODS: dict[str, Callable[..., float]] = {
 
 def dwell_median(durations, observed, method: str = "kaplan_meier") -> float:
     """Median dwell time by the named method (see :data:`DWELL_MEDIAN_METHODS`)."""
-    try:
-        fn = DWELL_MEDIAN_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown dwell median method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(DWELL_MEDIAN_METHODS))}") from None
+    fn = choose(DWELL_MEDIAN_METHODS, method, "dwell median method")
     return fn(durations, observed)

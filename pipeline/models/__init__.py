@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import CohortSettings, ModelSettings
-from pipeline.errors import ConfigError
+from pipeline.errors import choose, ConfigError
 from pipeline.models.counts import COUNT_REFERENCES, count_method
 from pipeline.models.design import cohort_design, is_cohort_term
 from pipeline.models.fdr import FDR_METHODS, FDR_REFERENCES, adjust_p
@@ -177,9 +177,7 @@ def _check_settings(models: ModelSettings, roster: pd.DataFrame) -> None:
     for key, registry, value in (("fdr_method", FDR_METHODS, models.fdr_method),
                                  ("df_method", DF_METHODS, models.df_method),
                                  ("survey_method", SURVEY_METHODS, models.survey_method)):
-        if value not in registry:
-            raise ConfigError(f"unknown [models] {key} {value!r}",
-                              hint=f"choose one of {', '.join(sorted(registry))}")
+        choose(registry, value, f"[models] {key}")
     count_method(models.count_method)
     missing = [c for c in models.covariates if c not in roster.columns]
     if missing:

@@ -14,7 +14,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 from pipeline.models.mixed import FitResult, _empty_terms, collinear_columns, \
     degrees_of_freedom, wald_table
 
@@ -137,8 +137,4 @@ COUNT_REFERENCES: dict[str, str] = {
 
 
 def count_method(name: str) -> CountMethod:
-    try:
-        return COUNT_METHODS[name]
-    except KeyError:
-        raise ConfigError(f"unknown [models] count_method {name!r}",
-                          hint=f"choose one of {', '.join(sorted(COUNT_METHODS))}") from None
+    return choose(COUNT_METHODS, name, "[models] count_method")

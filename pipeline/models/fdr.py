@@ -11,7 +11,7 @@ from typing import Callable
 
 import numpy as np
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 FdrMethod = Callable[[np.ndarray], np.ndarray]
 
@@ -75,9 +75,5 @@ FDR_REFERENCES: dict[str, str] = {
 
 def adjust_p(p: np.ndarray, method: str = "bh") -> np.ndarray:
     """Adjusted p-values of a family of tests by the named method."""
-    try:
-        fn = FDR_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown [models] fdr_method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(FDR_METHODS))}") from None
+    fn = choose(FDR_METHODS, method, "[models] fdr_method")
     return fn(np.asarray(p, dtype=float))

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 #: Optimisers tried in order; the first one whose fit converges is kept.
 OPTIMISERS: tuple[str, ...] = ("bfgs", "powell")
@@ -113,11 +113,7 @@ DF_REFERENCES: dict[str, str] = {
 
 
 def degrees_of_freedom(X: pd.DataFrame, groups: np.ndarray, method: str) -> np.ndarray:
-    try:
-        fn = DF_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown [models] df_method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(DF_METHODS))}") from None
+    fn = choose(DF_METHODS, method, "[models] df_method")
     return fn(X, groups)
 
 

@@ -28,7 +28,7 @@ import pandas as pd
 from scipy import optimize, stats
 
 from pipeline.config import DwellSettings, ModelSettings, SwitchSettings
-from pipeline.errors import ConfigError
+from pipeline.errors import choose, ConfigError
 
 POWER_COLUMNS = ["participants_per_cohort", "sessions_per_participant", "session_hours",
                  "rate_ratio", "true_rate_ratio", "power", "ci_low", "ci_high", "interval",
@@ -83,11 +83,7 @@ INTERVAL_METHODS: dict[str, Callable[[int, int, float], tuple[float, float]]] = 
 
 
 def binomial_interval(k: int, n: int, confidence: float, method: str) -> tuple[float, float]:
-    try:
-        fn = INTERVAL_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown interval method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(INTERVAL_METHODS))}") from None
+    fn = choose(INTERVAL_METHODS, method, "interval method")
     return fn(k, n, confidence)
 
 

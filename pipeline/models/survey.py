@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from pipeline.errors import ConfigError
+from pipeline.errors import choose, ConfigError
 from pipeline.models.fdr import adjust_p
 
 SURVEY_COLUMNS = ["item", "method", "cohort", "reference", "n_cohort", "n_reference",
@@ -132,11 +132,7 @@ def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: flo
     -------
     DataFrame with :data:`SURVEY_COLUMNS`, one row per item and compared cohort.
     """
-    try:
-        fn = SURVEY_METHODS[method]
-    except KeyError:
-        raise ConfigError(f"unknown [models] survey_method {method!r}",
-                          hint=f"choose one of {', '.join(sorted(SURVEY_METHODS))}") from None
+    fn = choose(SURVEY_METHODS, method, "[models] survey_method")
     if survey is None or len(survey) == 0:
         return pd.DataFrame(columns=SURVEY_COLUMNS)
     s = survey.copy()

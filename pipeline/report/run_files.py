@@ -11,7 +11,6 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from pipeline.config import Config

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from pipeline.config import DecompositionSettings
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 from pipeline.signals.convex import decompose_convex
 from pipeline.signals.filters import butterworth, context_samples, filtfilt_blocks
 
@@ -69,12 +69,7 @@ DECOMPOSITION_METHODS: dict[str, DecomposeFn] = {
 
 
 def decomposition_method(name: str) -> DecomposeFn:
-    try:
-        return DECOMPOSITION_METHODS[name]
-    except KeyError:
-        raise ConfigError(f"unknown decomposition method {name!r} in [signals.decomposition]",
-                          hint=f"choose one of {', '.join(sorted(DECOMPOSITION_METHODS))}"
-                          ) from None
+    return choose(DECOMPOSITION_METHODS, name, "decomposition method", " in [signals.decomposition]")
 
 
 def decompose(c: np.ndarray, fs: float, cfg: DecompositionSettings) -> Decomposition:

@@ -18,7 +18,7 @@ import numpy as np
 from scipy import ndimage
 
 from pipeline.config import HrSettings
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 from pipeline.signals.grid import interp_within
 from pipeline.signals.runs import fill_linear, runs_of
 
@@ -113,12 +113,7 @@ HR_ARTIFACT_METHODS: dict[str, ArtifactFn] = {
 
 
 def hr_artifact_method(name: str) -> ArtifactFn:
-    try:
-        return HR_ARTIFACT_METHODS[name]
-    except KeyError:
-        raise ConfigError(f"unknown heart-rate artifact method {name!r} in [signals.hr]",
-                          hint=f"choose one of {', '.join(sorted(HR_ARTIFACT_METHODS))}"
-                          ) from None
+    return choose(HR_ARTIFACT_METHODS, name, "heart-rate artifact method", " in [signals.hr]")
 
 
 @dataclass

@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.config import ScrSettings
-from pipeline.errors import ConfigError
+from pipeline.errors import choose
 
 SCR_COLUMNS = ["onset_s", "peak_s", "amplitude_us", "rise_time_s", "half_recovery_s"]
 
@@ -310,11 +310,7 @@ SCR_METHODS: dict[str, ScrFn] = {
 
 
 def scr_method(name: str) -> ScrFn:
-    try:
-        return SCR_METHODS[name]
-    except KeyError:
-        raise ConfigError(f"unknown SCR method {name!r} in [signals.scr]",
-                          hint=f"choose one of {', '.join(sorted(SCR_METHODS))}") from None
+    return choose(SCR_METHODS, name, "SCR method", " in [signals.scr]")
 
 
 def score_scrs(phasic: np.ndarray, cleaned: np.ndarray, valid: np.ndarray, fs: float,

@@ -6,7 +6,6 @@ import altair as alt
 import pandas as pd
 
 from pipeline.report import findings as F
-from pipeline.report import numbers as fmt
 from pipeline.report import palette as P
 from pipeline.report.charts._common import Figure, Missing, data, ratio_ticks
 from pipeline.report.palette import Palette

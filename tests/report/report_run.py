@@ -31,7 +31,6 @@ def _segments(rng: np.random.Generator, n: int, choices: list[str], mean_len: fl
 
 
 def make_timeline(rng, pid: str, sid: str) -> pd.DataFrame:
-    codes = list(PLATFORMS)
     views = ["", "tv", "phone", "tv;phone", f"{HOSTILE_CODE};tv", HOSTILE_CODE,
              f"{HOSTILE_CODE};phone;tv"]
     in_view = _segments(rng, SECONDS, views, 40)

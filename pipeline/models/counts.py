@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.errors import choose
-from pipeline.models.mixed import FitResult, _empty_terms, collinear_columns, \
+from pipeline.models.mixed import FitResult, _empty_terms, singular_design, \
     degrees_of_freedom, wald_table
 
 CountMethod = Callable[..., FitResult]
@@ -28,12 +28,9 @@ def _fit_gee(counts: np.ndarray, exposure_hours: np.ndarray, X: pd.DataFrame,
 
     names = [str(c) for c in X.columns]
     n_obs, n_groups = len(counts), int(len(pd.unique(groups)))
-    bad = collinear_columns(X)
-    if bad:
-        return FitResult(_empty_terms(names), {}, converged=False, fitted=False, n_obs=n_obs,
-                         n_groups=n_groups,
-                         notes=["not fitted: singular design, "
-                                f"{', '.join(bad)} cannot be told apart from the other terms"])
+    singular = singular_design(X, names, n_obs, n_groups)
+    if singular is not None:
+        return singular
     df = degrees_of_freedom(X, groups, df_method)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

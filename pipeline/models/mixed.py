@@ -150,6 +150,18 @@ def collinear_columns(X: pd.DataFrame) -> list[str]:
     return out
 
 
+def singular_design(X: pd.DataFrame, names: list[str], n_obs: int, n_groups: int
+                    ) -> "FitResult | None":
+    """An unfitted result naming the collinear terms, or None when the design is fine."""
+    bad = collinear_columns(X)
+    if not bad:
+        return None
+    return FitResult(_empty_terms(names), {}, converged=False, fitted=False, n_obs=n_obs,
+                     n_groups=n_groups,
+                     notes=["not fitted: singular design, "
+                            f"{', '.join(bad)} cannot be told apart from the other terms"])
+
+
 def _empty_terms(names: list[str]) -> pd.DataFrame:
     n = len(names)
     nan = np.full(n, np.nan)
@@ -207,12 +219,9 @@ def fit_mixed(
     n_obs, n_groups = len(y), int(len(pd.unique(groups)))
     df = degrees_of_freedom(X, groups, df_method)
 
-    bad = collinear_columns(X)
-    if bad:
-        return FitResult(_empty_terms(names), {}, converged=False, fitted=False, n_obs=n_obs,
-                         n_groups=n_groups,
-                         notes=["not fitted: singular design, "
-                                f"{', '.join(bad)} cannot be told apart from the other terms"])
+    singular = singular_design(X, names, n_obs, n_groups)
+    if singular is not None:
+        return singular
     if n_groups < 2 or n_obs <= X.shape[1]:
         return FitResult(_empty_terms(names), {}, converged=False, fitted=False, n_obs=n_obs,
                          n_groups=n_groups,

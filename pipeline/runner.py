@@ -180,8 +180,9 @@ def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list
     notes: list[str] = []
     roster = study.roster.set_index("participant_id")["cohort"]
     log = study.media_log
+    # observed=True: the log's ID columns may be categorical (only seen pairs wanted)
     groups = {k: log_part for k, log_part in log.groupby(["participant_id", "session_id"],
-                                                          sort=False)}
+                                                          sort=False, observed=True)}
     sync = {k: part for k, part in study.sync.groupby(["participant_id", "session_id"],
                                                       sort=False)}
     out = []
@@ -190,7 +191,7 @@ def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list
         codes = groups.get((key.participant_id, key.session_id))
         if codes is None:
             codes = log.iloc[0:0]
-        coders = sorted(codes["coder"].unique().tolist())
+        coders = sorted(str(c) for c in codes["coder"].unique())
         coder = ""
         if coders:
             wanted = cfg.coding.primary_coder
@@ -200,6 +201,8 @@ def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list
                              f"{coder!r}" + (" ([coding] primary_coder)" if wanted in coders
                                              else " (first in sorted order)"))
         codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
+        # stages see plain strings whatever dtype ingest chose for the whole log
+        codes = codes.astype({"in_view": object, "attended": object})
         pairs = sync.get((key.participant_id, key.session_id))
         out.append(SessionInputs(
             key=key,
@@ -616,7 +619,8 @@ def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict) -
     from pipeline.agreement.summary import agreement_methods, summary_lines
     from pipeline.agreement.tables import agreement_tables, study_agreement
 
-    per_session = study.media_log.groupby(["participant_id", "session_id"])["coder"].nunique()
+    per_session = study.media_log.groupby(["participant_id", "session_id"],
+                                          observed=True)["coder"].nunique()
     if not (per_session > 1).any():
         return []
     results = study_agreement(study, cfg)

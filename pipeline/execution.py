@@ -53,25 +53,86 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
-              cluster: str | None = None, stop_on_error: bool = False
-              ) -> Iterator[tuple[int, Outcome]]:
-    """Yield ``(index, Outcome)`` for each task as it finishes.
+def _limit_threads() -> None:
+    """Worker start-up: one thread per worker process.
 
-    With ``stop_on_error`` no new task is started after the first failure (tasks
-    already running finish and are yielded).
+    The pool already uses every core it was given; libraries that start their own
+    thread pools (Arrow's readers, BLAS) would only oversubscribe them, and a
+    ``--workers 1`` run must really use one core.
     """
-    if cluster:
-        yield from _run_dask(fn, args, cluster, stop_on_error)
-        return
-    if workers <= 1 or len(args) <= 1:
-        for i, arg in enumerate(args):
-            out = _call(fn, arg)
-            yield i, out
-            if stop_on_error and not out.ok:
-                return
-        return
-    with ProcessPoolExecutor(max_workers=workers) as pool:
+    try:
+        import pyarrow
+
+        pyarrow.set_cpu_count(1)
+        pyarrow.set_io_thread_count(1)
+    except ImportError:  # pragma: no cover - pyarrow is a dependency
+        pass
+    try:
+        from threadpoolctl import threadpool_limits
+
+        threadpool_limits(1)
+    except ImportError:  # pragma: no cover - optional
+        pass
+
+
+class TaskPool:
+    """Where a run's per-session tasks execute: in this process, a local process pool
+    or a Dask cluster. One pool serves every phase of a run, so worker processes are
+    started (and import the package) once.
+
+    Use as a context manager; :meth:`map` yields ``(index, Outcome)`` for each task as
+    it finishes. Local worker processes are started by :meth:`start`, which a run calls
+    before it reads the study, so that the forked workers do not inherit (and count in
+    their resident memory) the study's tables.
+    """
+
+    def __init__(self, workers: int = 1, cluster: str | None = None):
+        self.workers, self.cluster = workers, cluster
+        self._pool: ProcessPoolExecutor | None = None
+
+    @property
+    def local_files(self) -> bool:
+        """True when tasks see this machine's file system (no cluster)."""
+        return not self.cluster
+
+    def start(self) -> "TaskPool":
+        if not self.cluster and self.workers > 1 and self._pool is None:
+            self._pool = ProcessPoolExecutor(max_workers=self.workers,
+                                             initializer=_limit_threads)
+            # start every worker now (the pool forks lazily otherwise)
+            for fut in [self._pool.submit(_ready) for _ in range(self.workers)]:
+                fut.result()
+        return self
+
+    def close(self) -> None:
+        if self._pool is not None:
+            self._pool.shutdown()
+            self._pool = None
+
+    def __enter__(self) -> "TaskPool":
+        return self.start()
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def map(self, fn: Callable, args: Sequence[Any], *, stop_on_error: bool = False
+            ) -> Iterator[tuple[int, Outcome]]:
+        """Yield ``(index, Outcome)`` for each task as it finishes.
+
+        With ``stop_on_error`` no new task is started after the first failure (tasks
+        already running finish and are yielded).
+        """
+        if self.cluster:
+            yield from _run_dask(fn, args, self.cluster, stop_on_error)
+            return
+        if self.workers <= 1 or len(args) <= 1:
+            for i, arg in enumerate(args):
+                out = _call(fn, arg)
+                yield i, out
+                if stop_on_error and not out.ok:
+                    return
+            return
+        self.start()
         pending: dict[Future, int] = {}
         queue = iter(enumerate(args))
         stopped = False
@@ -81,10 +142,10 @@ def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
                 i, arg = next(queue)
             except StopIteration:
                 return
-            pending[pool.submit(_call, fn, arg)] = i
+            pending[self._pool.submit(_call, fn, arg)] = i
 
         # keep at most 2 tasks per worker in flight so memory stays bounded
-        for _ in range(2 * workers):
+        for _ in range(2 * self.workers):
             submit_next()
         while pending:
             done, _ = wait(pending, return_when=FIRST_COMPLETED)
@@ -96,6 +157,22 @@ def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
                     stopped = True
                 if not stopped:
                     submit_next()
+
+
+def _ready() -> bool:
+    return True
+
+
+def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
+              cluster: str | None = None, stop_on_error: bool = False
+              ) -> Iterator[tuple[int, Outcome]]:
+    """Yield ``(index, Outcome)`` for each task as it finishes, on a pool of its own.
+
+    With ``stop_on_error`` no new task is started after the first failure (tasks
+    already running finish and are yielded).
+    """
+    with TaskPool(workers, cluster) as pool:
+        yield from pool.map(fn, args, stop_on_error=stop_on_error)
 
 
 def _run_dask(fn: Callable, args: Sequence[Any], address: str, stop_on_error: bool

@@ -28,6 +28,29 @@ def sha256_file(path: Path, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
+def atomic_write(target: Path, write: Callable[[Path], None]) -> Path:
+    """Call ``write(tmp)`` on a temporary file beside ``target``, then rename it over
+    ``target``. Used by the folder below and by workers writing their own session's
+    files (the caller checks that ``target`` is inside the output folder)."""
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    os.close(fd)
+    try:
+        write(Path(tmp))
+        os.replace(tmp, target)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return target
+
+
+def write_parquet(target: Path, df: pd.DataFrame) -> str:
+    """Write a table as Parquet atomically; return the file's SHA-256."""
+    atomic_write(target, lambda p: df.to_parquet(p, index=False))
+    return sha256_file(target)
+
+
 class OutputFolder:
     """A run's output folder; records what was written and refuses paths outside it."""
 
@@ -35,6 +58,7 @@ class OutputFolder:
         self.root = Path(root).resolve()
         self.root.mkdir(parents=True, exist_ok=True)
         self.written: dict[str, str] = {}  # relative path -> stage that wrote it
+        self.known_sha256: dict[str, str] = {}  # hashes reported by the writer itself
 
     def path(self, relative: str | Path) -> Path:
         target = (self.root / relative).resolve()
@@ -44,17 +68,9 @@ class OutputFolder:
         return target
 
     def _atomic(self, relative: str | Path, stage: str, write: Callable[[Path], None]) -> Path:
-        target = self.path(relative)
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-        os.close(fd)
-        try:
-            write(Path(tmp))
-            os.replace(tmp, target)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+        target = atomic_write(self.path(relative), write)
         self.written[target.relative_to(self.root).as_posix()] = stage
+        self.known_sha256.pop(target.relative_to(self.root).as_posix(), None)
         return target
 
     def csv(self, relative: str, df: pd.DataFrame, stage: str) -> Path:
@@ -75,10 +91,17 @@ class OutputFolder:
     def bytes(self, relative: str, data: bytes, stage: str) -> Path:
         return self._atomic(relative, stage, lambda p: p.write_bytes(data))
 
-    def record(self, path: Path, stage: str) -> None:
-        """Note a file another writer put in the folder (e.g. the report's charts)."""
-        self.written[self.path(path).relative_to(self.root).as_posix()] = stage
+    def record(self, path: Path, stage: str, sha256: str | None = None) -> None:
+        """Note a file another writer put in the folder (the report's charts, a worker's
+        timeline); ``sha256`` when the writer already hashed it."""
+        rel = self.path(path).relative_to(self.root).as_posix()
+        self.written[rel] = stage
+        if sha256:
+            self.known_sha256[rel] = sha256
+        else:
+            self.known_sha256.pop(rel, None)
 
     def hashes(self) -> dict[str, dict[str, str]]:
-        return {rel: {"stage": stage, "sha256": sha256_file(self.root / rel)}
+        return {rel: {"stage": stage,
+                      "sha256": self.known_sha256.get(rel) or sha256_file(self.root / rel)}
                 for rel, stage in sorted(self.written.items()) if (self.root / rel).is_file()}

@@ -27,11 +27,12 @@ import numpy as np
 import pandas as pd
 
 from pipeline import __version__
+from pipeline.agreement.session import SessionAgreement, session_agreement
 from pipeline.align.clock import ClockMap
 from pipeline.align.timeline import build_timeline
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
-from pipeline.execution import Outcome, run_tasks
+from pipeline.execution import Outcome, TaskPool
 from pipeline.ingest import load_study
 from pipeline.ingest import read_recording_checked
 from pipeline.metrics.arousal import add_arousal, arousal_source
@@ -39,7 +40,7 @@ from pipeline.metrics.session import session_metrics
 from pipeline.metrics.switch_locked import (session_seed, switch_locked_methods,
                                             switch_locked_session, switch_locked_summary)
 from pipeline.models import compare, compare_survey, survey_methods
-from pipeline.outputs import OutputFolder, sha256_file
+from pipeline.outputs import OutputFolder, atomic_write, sha256_file, write_parquet
 from pipeline.signals import process_recording
 from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
 
@@ -67,8 +68,27 @@ class Prepared:
 
 @dataclass
 class PrepareTask:
+    """Phase-1 work of one session. In local runs the worker itself checks and fills
+    the session's cache file (``cache_file``), so hashing inputs, pickling timelines
+    and writing them never queue up in the runner's process."""
+
     inputs: SessionInputs
     cfg: Config
+    cache_file: Path | None = None
+    fresh: bool = False
+
+
+@dataclass
+class PrepareOutcome:
+    """What phase 1 hands back: the session's facts (its timeline only when no cache
+    file holds it), the arousal moments for the within-participant z-score, and
+    where the result came from."""
+
+    prepared: Prepared
+    moments: tuple[int, float, float]
+    cache_key: str
+    from_cache: bool
+    cache_sha256: str | None = None
 
 
 def prepare_session(task: PrepareTask) -> Prepared:
@@ -104,11 +124,52 @@ def prepare_session(task: PrepareTask) -> Prepared:
     )
 
 
+def load_cached(path: Path, key: str) -> Prepared | None:
+    """The cached phase-1 result in ``path`` if it was made from the same inputs."""
+    if not path.is_file():
+        return None
+    try:
+        with open(path, "rb") as fh:
+            stored = pickle.load(fh)
+        if stored.get("key") == key:
+            return stored["value"]
+    except Exception:  # a damaged cache entry is recomputed, never trusted
+        pass
+    return None
+
+
+def store_cached(path: Path, key: str, prepared: Prepared) -> str:
+    """Write one session's phase-1 result atomically; return the file's SHA-256."""
+    data = pickle.dumps({"key": key, "value": prepared}, protocol=pickle.HIGHEST_PROTOCOL)
+    atomic_write(path, lambda p: p.write_bytes(data))
+    return hashlib.sha256(data).hexdigest()
+
+
+def prepare_cached(task: PrepareTask) -> PrepareOutcome:
+    """Phase 1 of one session, through its cache file when the task names one."""
+    key = _cache_key(task.inputs, task.cfg)
+    prep = None
+    if task.cache_file is not None and not task.fresh:
+        prep = load_cached(task.cache_file, key)
+    from_cache = prep is not None
+    if prep is None:
+        prep = prepare_session(task)
+    moments = _moments(prep.timeline, task.cfg)
+    sha = None
+    if task.cache_file is not None:
+        if not from_cache:
+            sha = store_cached(task.cache_file, key, prep)
+        prep.timeline = None  # the file holds it; phase 3 reads it back there
+    return PrepareOutcome(prepared=prep, moments=moments, cache_key=key,
+                          from_cache=from_cache, cache_sha256=sha)
+
+
 @dataclass
 class FinishTask:
     """Phase-3 work of one session. The timeline travels in the task (cluster runs) or
     is re-read from the phase-1 cache file (local runs), so the runner never holds
-    every session's timeline in memory at once."""
+    every session's timeline in memory at once; in local runs the worker also writes
+    the finished timeline to ``timeline_file`` itself."""
 
     inputs: SessionInputs
     mean: float
@@ -117,6 +178,10 @@ class FinishTask:
     seed: int
     timeline: pd.DataFrame | None = None
     cache_file: Path | None = None
+    timeline_file: Path | None = None
+    #: every coder's rows of this session (second, in_view, attended, coder) when the
+    #: study has double-coded sessions, for the session's coder agreement
+    agreement_codes: pd.DataFrame | None = None
 
     def load_timeline(self) -> pd.DataFrame:
         if self.timeline is not None:
@@ -128,20 +193,33 @@ class FinishTask:
 @dataclass
 class Finished:
     key: SessionKey
-    timeline: pd.DataFrame
+    timeline: pd.DataFrame | None
     metrics: SessionMetrics
     switch_locked: pd.DataFrame | None
+    agreement: SessionAgreement | None = None
+    timeline_sha256: str | None = None
 
 
 def finish_session(task: FinishTask) -> Finished:
-    """Arousal z-score, media metrics and switch-locked arousal of one session."""
-    timeline = add_arousal(task.load_timeline(), task.mean, task.sd, task.cfg.arousal)
-    metrics = session_metrics(timeline, task.inputs, task.cfg)
+    """Arousal z-score, media metrics, switch-locked arousal and coder agreement of one
+    session."""
+    cfg = task.cfg
+    timeline = add_arousal(task.load_timeline(), task.mean, task.sd, cfg.arousal)
+    metrics = session_metrics(timeline, task.inputs, cfg)
     locked = switch_locked_session(timeline, metrics.switches, task.seed,
-                                   window_s=task.cfg.models.switch_locked_window_s,
-                                   n_pseudo=task.cfg.models.switch_locked_pseudo)
-    return Finished(key=task.inputs.key, timeline=timeline, metrics=metrics,
-                    switch_locked=locked)
+                                   window_s=cfg.models.switch_locked_window_s,
+                                   n_pseudo=cfg.models.switch_locked_pseudo)
+    agreement = None
+    if task.agreement_codes is not None and len(task.agreement_codes):
+        agreement = session_agreement(task.inputs.key, task.agreement_codes,
+                                      task.inputs.duration_s, cfg.agreement, cfg.switching,
+                                      cfg.dwell)
+    fin = Finished(key=task.inputs.key, timeline=timeline, metrics=metrics,
+                   switch_locked=locked, agreement=agreement)
+    if task.timeline_file is not None:
+        fin.timeline_sha256 = write_parquet(task.timeline_file, timeline)
+        fin.timeline = None
+    return fin
 
 
 class _Lazy:
@@ -175,8 +253,14 @@ class RunResult:
         return self.sessions_ok < self.sessions_total
 
 
-def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list[str]]:
-    """Cut each session's inputs out of the study; note which coder each one uses."""
+def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame] | None = None
+                   ) -> tuple[list[SessionInputs], list[str]]:
+    """Cut each session's inputs out of the study; note which coder each one uses.
+
+    When ``all_coders`` is a dict, it is filled with every coder's rows (second,
+    in_view, attended, coder) of each session that has media-log rows, by the
+    session's index in the returned list (for coder agreement).
+    """
     notes: list[str] = []
     roster = study.roster.set_index("participant_id")["cohort"]
     log = study.media_log
@@ -200,6 +284,9 @@ def session_inputs(study: Study, cfg: Config) -> tuple[list[SessionInputs], list
                 notes.append(f"{key.label()}: coded by {', '.join(coders)}; run uses "
                              f"{coder!r}" + (" ([coding] primary_coder)" if wanted in coders
                                              else " (first in sorted order)"))
+        if all_coders is not None and len(codes):
+            all_coders[len(out)] = codes[["second", "in_view", "attended", "coder"]].astype(
+                {"in_view": object, "attended": object, "coder": object})
         codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
         # stages see plain strings whatever dtype ingest chose for the whole log
         codes = codes.astype({"in_view": object, "attended": object})
@@ -331,12 +418,27 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
               log: Callable[[str], None] = print) -> RunResult:
     """Run the whole pipeline on a study folder or study .toml; write OUT."""
     started = time.perf_counter()
-    timings: dict[str, float] = {}
     folder, cfg, cfg_file = resolve_study(target)
+    # Local workers start before the study is read, so they do not inherit its tables;
+    # one pool serves both per-session phases.
+    with TaskPool(workers, cluster) as pool:
+        return _run(pool, folder, cfg, cfg_file, out, started=started, keep_going=keep_going,
+                    fresh=fresh, quiet=quiet, report=report)
+
+
+def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: str | Path, *,
+         started: float, keep_going: bool, fresh: bool, quiet: bool, report: bool
+         ) -> RunResult:
+    timings: dict[str, float] = {}
+    _arrow_threads(pool.workers if pool.local_files else 1)
     study = load_study(folder, cfg)
     timings["ingest_s"] = time.perf_counter() - started
     outdir = OutputFolder(Path(out))
-    inputs, coder_notes = session_inputs(study, cfg)
+    multi_coded = _multi_coded(study)
+    if multi_coded:
+        check_agreement_codes(study)
+    all_coders: dict[int, pd.DataFrame] | None = {} if multi_coded else None
+    inputs, coder_notes = session_inputs(study, cfg, all_coders)
     total = len(inputs)
     failures: list[dict] = []
 
@@ -349,63 +451,74 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
                              hint=(outcome.hint or "") + "; use --keep-going to run the "
                              "other sessions and list every failure")
 
-    # -- phase 1: signals + align, cached
+    # -- phase 1: signals + align, cached per session
     t0 = time.perf_counter()
     prepared: dict[int, Prepared] = {}
-    todo: list[int] = []
-    keys: dict[int, str] = {}
-    for i, inp in enumerate(inputs):
-        keys[i] = _cache_key(inp, cfg)
-        cache = outdir.path(f"{CACHE_DIR}/{inp.key.stem()}.pkl")
-        if not fresh and cache.is_file():
-            try:
-                with open(cache, "rb") as fh:
-                    stored = pickle.load(fh)
-                if stored.get("key") == keys[i]:
-                    prepared[i] = stored["value"]
-                    continue
-            except Exception:  # a damaged cache entry is recomputed, never trusted
-                pass
-        todo.append(i)
+    moments: dict[int, tuple[int, float, float]] = {}
+    cache_file = {i: outdir.path(f"{CACHE_DIR}/{inp.key.stem()}.pkl")
+                  for i, inp in enumerate(inputs)}
+    if pool.local_files:
+        # the workers check and fill the cache files themselves
+        todo = list(range(total))
+        tasks = [PrepareTask(inputs[i], cfg, cache_file=cache_file[i], fresh=fresh)
+                 for i in todo]
+    else:
+        # cluster workers may not see this file system: the cache stays with the runner
+        todo = []
+        for i, inp in enumerate(inputs):
+            hit = None if fresh else load_cached(cache_file[i], _cache_key(inp, cfg))
+            if hit is not None:
+                moments[i] = _moments(hit.timeline, cfg)
+                hit.timeline = None
+                prepared[i] = hit
+            else:
+                todo.append(i)
+        tasks = [PrepareTask(inputs[i], cfg) for i in todo]
+    cached = len(prepared)
     bar = Progress(total, "signals", quiet)
     for _ in prepared:
         bar.step()
-    tasks = [PrepareTask(inputs[i], cfg) for i in todo]
     try:
-        for j, outcome in run_tasks(prepare_session, tasks, workers=workers, cluster=cluster,
-                                    stop_on_error=not keep_going):
+        for j, outcome in pool.map(prepare_cached, tasks, stop_on_error=not keep_going):
             i = todo[j]
             bar.step()
             if not outcome.ok:
                 failed(inputs[i], "signals", outcome)
                 continue
-            prepared[i] = outcome.value
-            outdir._atomic(f"{CACHE_DIR}/{inputs[i].key.stem()}.pkl", "cache",
-                           lambda p, v=outcome.value, k=keys[i]: p.write_bytes(
-                               pickle.dumps({"key": k, "value": v})))
+            res: PrepareOutcome = outcome.value
+            cached += res.from_cache
+            if res.prepared.timeline is not None:  # cluster run: store it here
+                res.cache_sha256 = store_cached(cache_file[i], res.cache_key, res.prepared)
+                res.prepared.timeline = None
+            if res.cache_sha256:
+                outdir.record(cache_file[i], "cache", res.cache_sha256)
+            prepared[i] = res.prepared
+            moments[i] = res.moments
     finally:
         bar.close()
     timings["signals_s"] = time.perf_counter() - t0
-    cached = total - len(todo)
 
-    # -- phase 2: within-participant arousal moments; timelines leave memory
+    # -- phase 2: within-participant arousal moments (Chan et al. pooling)
     by_participant: dict[str, list[tuple[int, float, float]]] = {}
-    for i, prep in prepared.items():
-        by_participant.setdefault(inputs[i].key.participant_id, []).append(
-            _moments(prep.timeline, cfg))
-        prep.timeline = None
+    for i in sorted(prepared):
+        by_participant.setdefault(inputs[i].key.participant_id, []).append(moments[i])
     zstats = {pid: _combine_moments(parts) for pid, parts in by_participant.items()}
 
-    # -- phase 4: per-session metrics
+    # -- phase 3: per-session metrics (and coder agreement)
     t0 = time.perf_counter()
     order = sorted(prepared)
+
     def finish_task(i: int) -> FinishTask:
-        pid = inputs[i].key.participant_id
-        cache = outdir.path(f"{CACHE_DIR}/{inputs[i].key.stem()}.pkl")
-        task = FinishTask(inputs[i], zstats[pid][0], zstats[pid][1], cfg,
-                          seed=session_seed(pid, inputs[i].key.session_id),
-                          cache_file=cache)
-        if cluster:  # workers may not see this file system: ship the timeline
+        inp = inputs[i]
+        pid = inp.key.participant_id
+        task = FinishTask(inp, zstats[pid][0], zstats[pid][1], cfg,
+                          seed=session_seed(pid, inp.key.session_id),
+                          cache_file=cache_file[i],
+                          agreement_codes=all_coders.get(i) if all_coders is not None
+                          else None)
+        if pool.local_files:
+            task.timeline_file = outdir.path(f"timeline/{inp.key.stem()}.parquet")
+        else:  # workers may not see this file system: ship the timeline
             task.timeline = task.load_timeline()
         return task
 
@@ -413,8 +526,7 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     finished: dict[int, Finished] = {}
     bar = Progress(len(finish_tasks), "metrics", quiet)
     try:
-        for j, outcome in run_tasks(finish_session, finish_tasks, workers=workers,
-                                    cluster=cluster, stop_on_error=not keep_going):
+        for j, outcome in pool.map(finish_session, finish_tasks, stop_on_error=not keep_going):
             i = order[j]
             bar.step()
             if not outcome.ok:
@@ -422,8 +534,12 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
                 continue
             fin: Finished = outcome.value
             finished[i] = fin
-            outdir.parquet(f"timeline/{fin.key.stem()}.parquet", fin.timeline, "align")
-            fin.timeline = None  # free the memory; the file holds it now
+            rel = f"timeline/{fin.key.stem()}.parquet"
+            if fin.timeline is not None:  # cluster run: write it here
+                outdir.parquet(rel, fin.timeline, "align")
+                fin.timeline = None  # free the memory; the file holds it now
+            else:
+                outdir.record(outdir.path(rel), "align", fin.timeline_sha256)
     finally:
         bar.close()
     timings["metrics_s"] = time.perf_counter() - t0
@@ -602,7 +718,7 @@ def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
                                                    m.switch_locked_pre_s))
     lines += more
 
-    lines += _agreement(study, cfg, outdir, methods)
+    lines += _agreement(study, cfg, outdir, methods, finished, ok)
     if study.survey is not None:
         table = compare_survey(study.survey, study.roster, m.fdr_q, method=m.survey_method,
                                reference=cfg.cohorts.reference,
@@ -614,16 +730,37 @@ def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
     return lines
 
 
-def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict) -> list[str]:
-    """Coder agreement, where some session is coded by two or more coders."""
-    from pipeline.agreement.summary import agreement_methods, summary_lines
-    from pipeline.agreement.tables import agreement_tables, study_agreement
-
+def _multi_coded(study: Study) -> bool:
+    """True when some session of the media log is coded by two or more coders."""
     per_session = study.media_log.groupby(["participant_id", "session_id"],
                                           observed=True)["coder"].nunique()
-    if not (per_session > 1).any():
+    return bool((per_session > 1).any())
+
+
+def check_agreement_codes(study: Study) -> None:
+    """Refuse a platform code that the agreement tables use for 'nothing attended'."""
+    from pipeline.agreement.session import NONE
+    from pipeline.errors import InputError
+
+    if (study.media_log["attended"].astype(str) == NONE).any():
+        raise InputError(
+            "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
+            "tables name 'nothing attended'", column="attended", value=NONE,
+            hint="rename the platform code (e.g. 'none_device'); leave attended empty "
+            "for nothing attended")
+
+
+def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict,
+               finished: dict[int, Finished], ok: list[int]) -> list[str]:
+    """Coder agreement tables, from the sessions' own agreement results (phase 3),
+    where some session is coded by two or more coders."""
+    from pipeline.agreement.summary import agreement_methods, summary_lines
+    from pipeline.agreement.tables import agreement_tables
+
+    results = [finished[i].agreement for i in ok if finished[i].agreement is not None]
+    if not any(len(r.coders) > 1 for r in results):
         return []
-    results = study_agreement(study, cfg)
+    results.sort(key=lambda r: (r.key.participant_id, r.key.session_id))
     tables = agreement_tables(results, cfg.agreement.switch_tolerance_s,
                               cfg.agreement.switch_matching)
     for name, table in tables.items():
@@ -632,6 +769,14 @@ def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict) -
                                              cfg.agreement.switch_matching)
     return summary_lines(tables["study.csv"].iloc[0].to_dict(), len(study.sessions),
                          len(tables["alpha.csv"]))
+
+
+def _arrow_threads(n: int) -> None:
+    """Let Arrow's readers in this process use ``n`` threads (one for ``--workers 1``,
+    so that a serial run really runs on one core)."""
+    import pyarrow
+
+    pyarrow.set_cpu_count(max(1, n))
 
 
 def _build_report(outdir: OutputFolder, manifest: dict) -> list[str]:

@@ -20,7 +20,7 @@ def run(
                                 help="Parallel processes for per-session work; 0 = all cores."),
     cluster: str = typer.Option(None, "--cluster",
                                 help="Address of a running Dask scheduler to run the "
-                                "per-session work on (needs screenweave[dask])."),
+                                "per-session work on (needs the screenweave\\[dask] extra)."),
     keep_going: bool = typer.Option(False, "--keep-going",
                                     help="Run the other sessions when one fails, list every "
                                     "failure, and exit with status 4 (partial success)."),

@@ -5,8 +5,10 @@ For each size a reference study is made by `screenweave synth` (4-hour sessions 
 
 * wall time and throughput (participant-hours per second) of `run --workers 1` and
   `run --workers 2` (the per-session cache is bypassed with --fresh);
-* peak resident memory of the whole process tree (the runner and its workers),
-  sampled every 50 ms with psutil;
+* peak memory of the whole process tree (the runner and its workers), sampled
+  with psutil: summed resident set sizes (RSS) and summed proportional set sizes
+  (PSS, which counts pages shared by forked workers once);
+* the run's own stage timings (``timings_s`` of its manifest);
 * the peer baseline a researcher would otherwise script: NeuroKit2's
   ``eda_process`` on the EDA channel of every recording of the study (EDA
   processing alone, no alignment, metrics, models or report).
@@ -15,6 +17,10 @@ Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
 
     .venv/bin/python benchmarks/scaling.py            # sizes 12, 40, 120 sessions
     .venv/bin/python benchmarks/scaling.py --quick    # 4 and 8 sessions, for a smoke run
+    .venv/bin/python benchmarks/scaling.py --keep /tmp/w --reuse --only large
+                                      # re-measure one size on studies made before
+
+Partial runs (--quick, --only) write benchmarks/results/scaling_partial.json.
 """
 
 from __future__ import annotations
@@ -40,29 +46,41 @@ QUICK = {"small": (1, 2), "medium": (2, 2)}
 
 
 def measure(cmd: list[str], env: dict | None = None) -> dict:
-    """Run a command; return wall seconds and the peak RSS of its process tree."""
+    """Run a command; return wall seconds and the peak memory of its process tree.
+
+    Two memory figures: the peak of the summed resident set sizes (RSS) of the
+    process and its children, sampled every 50 ms, and the peak of their summed
+    proportional set sizes (PSS, Linux), sampled every 250 ms. Forked workers share
+    the pages of the libraries the runner imported; RSS counts those once per
+    process, PSS splits them between the processes that share them.
+    """
     start = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, env=env)
     root = psutil.Process(proc.pid)
-    peak = 0
+    peak, peak_pss, tick = 0, 0, 0
     while proc.poll() is None:
         try:
             procs = [root] + root.children(recursive=True)
-            rss = 0
+            rss = pss = 0
             for p in procs:
                 try:
                     rss += p.memory_info().rss
-                except psutil.NoSuchProcess:
+                    if tick % 5 == 0:
+                        pss += p.memory_full_info().pss
+                except (psutil.NoSuchProcess, psutil.AccessDenied, AttributeError):
                     pass
             peak = max(peak, rss)
+            peak_pss = max(peak_pss, pss)
         except psutil.NoSuchProcess:
             pass
+        tick += 1
         time.sleep(0.05)
     out = proc.stdout.read().decode(errors="replace")
     wall = time.perf_counter() - start
     if proc.returncode != 0:
         raise SystemExit(f"command failed ({proc.returncode}): {' '.join(cmd)}\n{out}")
-    return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "output": out[-2000:]}
+    return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "peak_pss_mb": peak_pss / 2**20,
+            "output": out[-2000:]}
 
 
 NK_SCRIPT = r"""
@@ -93,12 +111,15 @@ NK_MAX_FILES = 40
 
 
 def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
-               work: Path) -> dict:
+               work: Path, reuse: bool = False) -> dict:
     study = work / f"study_{name}"
     synth = [str(BIN / "screenweave"), "synth", str(study), "--participants-per-cohort",
              str(ppc), "--sessions", str(sessions), "--hours", str(hours), "--rate-hz",
              str(rate), "--seed", "11", "--force"]
-    subprocess.run(synth, check=True, stdout=subprocess.DEVNULL)
+    if reuse and (study / "sessions.csv").is_file():
+        print(f"   reusing {study}", flush=True)
+    else:
+        subprocess.run(synth, check=True, stdout=subprocess.DEVNULL)
     import pandas as pd
 
     table = pd.read_csv(study / "sessions.csv")
@@ -114,6 +135,9 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
                      "--workers", str(workers), "--fresh", "--quiet", "--no-report"])
         row[f"wall_s_workers{workers}"] = m["wall_s"]
         row[f"peak_rss_mb_workers{workers}"] = m["peak_rss_mb"]
+        row[f"peak_pss_mb_workers{workers}"] = m["peak_pss_mb"]
+        stages = json.loads((out / "manifest.json").read_text()).get("timings_s", {})
+        row[f"stage_s_workers{workers}"] = stages
         row[f"participant_hours_per_s_workers{workers}"] = participant_hours / m["wall_s"]
     row["speedup_2_workers"] = row["wall_s_workers1"] / row["wall_s_workers2"]
     nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
@@ -133,6 +157,10 @@ def main() -> None:
     ap.add_argument("--hours", type=float, default=4.0)
     ap.add_argument("--rate-hz", type=float, default=32.0)
     ap.add_argument("--keep", type=Path, default=None, help="work folder to keep")
+    ap.add_argument("--reuse", action="store_true",
+                    help="with --keep: reuse studies already made there by an earlier run")
+    ap.add_argument("--only", choices=["small", "medium", "large"], action="append",
+                    help="measure only these sizes (repeatable)")
     args = ap.parse_args()
     sizes = QUICK if args.quick else SIZES
     hours = 0.5 if args.quick else args.hours
@@ -140,8 +168,11 @@ def main() -> None:
     work.mkdir(parents=True, exist_ok=True)
     rows = []
     for name, (ppc, sessions) in sizes.items():
+        if args.only and name not in args.only:
+            continue
         print(f"== {name}: {2 * ppc * sessions} sessions of {hours} h", flush=True)
-        rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work))
+        rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work,
+                               reuse=args.reuse and args.keep is not None))
         print(json.dumps(rows[-1], indent=1), flush=True)
     result = {
         "machine": {"cores": os.cpu_count(), "memory_gb": psutil.virtual_memory().total / 2**30,
@@ -149,22 +180,27 @@ def main() -> None:
         "rows": rows,
         "rss_growth_smallest_to_largest_workers2": rows[-1]["peak_rss_mb_workers2"]
         / rows[0]["peak_rss_mb_workers2"],
+        "pss_growth_smallest_to_largest_workers2": rows[-1]["peak_pss_mb_workers2"]
+        / rows[0]["peak_pss_mb_workers2"],
     }
     RESULTS.mkdir(parents=True, exist_ok=True)
-    target = RESULTS / ("scaling_quick.json" if args.quick else "scaling.json")
+    partial = args.quick or bool(args.only)
+    target = RESULTS / ("scaling_partial.json" if partial else "scaling.json")
     target.write_text(json.dumps(result, indent=2) + "\n")
     print("\n| size | sessions | participant-hours | workers 1 (s) | workers 2 (s) | speedup | "
-          "participant-h/s (2 workers) | peak RSS 2 workers (MB) | NeuroKit2 EDA alone (s) | "
-          "run / NeuroKit2 |")
-    print("|---|---|---|---|---|---|---|---|---|---|")
+          "participant-h/s (2 workers) | peak RSS 2 workers (MB) | peak PSS 2 workers (MB) | "
+          "NeuroKit2 EDA alone (s) | run / NeuroKit2 |")
+    print("|---|---|---|---|---|---|---|---|---|---|---|")
     for r in rows:
         print(f"| {r['size']} | {r['sessions']} | {r['participant_hours']:.0f} | "
               f"{r['wall_s_workers1']:.1f} | {r['wall_s_workers2']:.1f} | "
               f"{r['speedup_2_workers']:.2f} | {r['participant_hours_per_s_workers2']:.2f} | "
-              f"{r['peak_rss_mb_workers2']:.0f} | {r['neurokit2_eda_process_s']:.1f} | "
+              f"{r['peak_rss_mb_workers2']:.0f} | {r['peak_pss_mb_workers2']:.0f} | "
+              f"{r['neurokit2_eda_process_s']:.1f} | "
               f"{r['run_vs_neurokit2_time']:.3f} |")
     print(f"\nRSS growth smallest -> largest (2 workers): "
-          f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x; written {target}")
+          f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x (PSS "
+          f"{result['pss_growth_smallest_to_largest_workers2']:.2f}x); written {target}")
 
 
 if __name__ == "__main__":

@@ -343,6 +343,14 @@ class ModelSettings(StrictModel):
         "'between_within' (t, participant-level terms get participant degrees of freedom) "
         "or 'normal' (z, large-sample).",
     )
+    mixed_fitter: str = Field(
+        "profiled_reml",
+        description="How the random-intercept mixed models are fitted: 'profiled_reml' "
+        "(REML profiled over the fixed effects and the residual variance, a one-dimensional "
+        "search over the variance ratio; fast; lme4's standard errors) or 'statsmodels' "
+        "(statsmodels MixedLM; standard errors from its full observed Hessian, which differ "
+        "slightly from lme4's in unbalanced designs).",
+    )
     session_outcomes: list[str] = Field(
         default_factory=lambda: ["switches_per_hour", "media_hours", "multi_share",
                                  "dwell_median_s"],

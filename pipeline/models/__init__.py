@@ -37,7 +37,8 @@ from pipeline.models.counts import COUNT_REFERENCES, count_method
 from pipeline.models.design import cohort_design, is_cohort_term
 from pipeline.models.fdr import FDR_METHODS, FDR_REFERENCES, adjust_p
 from pipeline.models.guards import CohortPlan, plan_cohorts, too_few_participants
-from pipeline.models.mixed import DF_METHODS, DF_REFERENCES, FitResult, fit_mixed
+from pipeline.models.mixed import DF_METHODS, DF_REFERENCES, MIXED_FITTER_REFERENCES, \
+    MIXED_FITTERS, FitResult, fit_mixed
 from pipeline.models.summary import disagreement, row_sentence
 from pipeline.models.survey import SURVEY_METHODS, compare_survey, survey_methods
 from pipeline.types import STATES
@@ -176,6 +177,7 @@ def _drop_unusable(sessions: pd.DataFrame, others: list[pd.DataFrame], exclude: 
 def _check_settings(models: ModelSettings, roster: pd.DataFrame) -> None:
     for key, registry, value in (("fdr_method", FDR_METHODS, models.fdr_method),
                                  ("df_method", DF_METHODS, models.df_method),
+                                 ("mixed_fitter", MIXED_FITTERS, models.mixed_fitter),
                                  ("survey_method", SURVEY_METHODS, models.survey_method)):
         choose(registry, value, f"[models] {key}")
     count_method(models.count_method)
@@ -228,7 +230,8 @@ def model_session_outcome(data: pd.DataFrame, outcome: str, *, cohorts: list[str
     X = cohort_design(data, cohorts, reference, covariates, states)
     fit = fit_mixed(data["y"], X, data["participant_id"],
                     confidence=models.confidence_level, df_method=models.df_method,
-                    zero_variance_share=models.zero_variance_share)
+                    zero_variance_share=models.zero_variance_share,
+                    fitter=models.mixed_fitter)
     return _fit_rows(outcome, MIXED, fit, scale, extra_notes or []), fit
 
 
@@ -490,7 +493,7 @@ def compare(sessions: pd.DataFrame, states: pd.DataFrame, groups: pd.DataFrame,
             f"sessions with zero switches: log((switches + {m.zero_count_offset:g}) / "
             "multi_hours) for every session (continuity correction, Anscombe 1948, "
             "Biometrika 35:246-254)")
-    if "powell" in ctx.optimisers:
+    if "powell" in ctx.optimisers:  # the statsmodels fitter's fall-back
         methods["optimiser"] = ("where the gradient optimiser failed, the REML fit was "
                                 "completed by Powell's derivative-free method (Powell 1964, "
                                 "Comput J 7:155-162)")
@@ -531,10 +534,9 @@ def _sentences(table: pd.DataFrame, ctx: _Context) -> list[str]:
 def _methods(m: ModelSettings) -> dict[str, str]:
     return {
         "mixed_model": "linear mixed models fitted by restricted maximum likelihood with a "
-        "random intercept per participant (Laird & Ware 1982, Biometrics 38:963-974; "
-        "statsmodels MixedLM, checked against the lme4 fit of the sleepstudy data in Bates "
-        "et al. 2015, J Stat Softw 67(1)); session outcomes as outcome ~ cohort, per-state "
-        "arousal as outcome ~ cohort * state",
+        "random intercept per participant (Laird & Ware 1982, Biometrics 38:963-974); "
+        + MIXED_FITTER_REFERENCES[m.mixed_fitter] + "; session outcomes as outcome ~ "
+        "cohort, per-state arousal as outcome ~ cohort * state",
         "degrees_of_freedom": DF_REFERENCES[m.df_method],
         "count_model": COUNT_REFERENCES[m.count_method] + "; "
         + COUNT_REFERENCES[m.gee_cov_type],

@@ -50,15 +50,16 @@ def block_mean(a: np.ndarray, step: int) -> np.ndarray:
     samples ignored; one value per kept sample ``a[::step]``."""
     if step == 1:
         return a
-    n = a.size
-    full = n // step
-    have = np.isfinite(a)
-    vals = np.where(have, a, 0.0)
-    sums = vals[: full * step].reshape(full, step).sum(axis=1)
-    counts = have[: full * step].reshape(full, step).sum(axis=1)
-    if full * step < n:
-        sums = np.r_[sums, vals[full * step:].sum()]
-        counts = np.r_[counts, have[full * step:].sum()]
+    n_blocks = -(-a.size // step)
+    sums = np.zeros(n_blocks)
+    counts = np.zeros(n_blocks, dtype=np.int64)
+    # add up the j-th sample of every block, j = 0 .. step - 1: a few passes over long
+    # columns cost far less than a short sum per block
+    for j in range(step):
+        column = a[j::step]
+        have = np.isfinite(column)
+        sums[: column.size] += np.where(have, column, 0.0)
+        counts[: column.size] += have
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(counts > 0, sums / np.maximum(counts, 1), np.nan)
 
@@ -67,8 +68,20 @@ def motion_magnitude(rec: Recording, grid: Grid, max_interp_s: float) -> np.ndar
     """|accelerometer magnitude - 1 g| on the grid, where all three axes are present."""
     if not all(a in rec.channels for a in ACC):
         return None
-    x, y, z = (to_grid(grid, rec.time_s, rec.channels[a], max_interp_s) for a in ACC)
-    mag = np.hypot(np.hypot(x, y), z)
+    # sqrt(x² + y² + z²), squared in place in each axis' own copy, one axis held at a
+    # time: on a long recording every fresh array costs more than the arithmetic.
+    # (np.hypot would guard against overflow, which accelerations in g never come
+    # near, at several times the cost; the two agree to an ulp or so.)
+    mag = None
+    for axis in ACC:
+        v = to_grid(grid, rec.time_s, rec.channels[axis], max_interp_s, copy=True)
+        v *= v
+        if mag is None:
+            mag = v
+        else:
+            mag += v
+        del v
+    np.sqrt(mag, out=mag)
     mag -= 1.0
     return np.abs(mag, out=mag)
 
@@ -110,9 +123,12 @@ def process_recording(rec: Recording, cfg: SignalSettings) -> SessionSignals:
         notes.append(f"processed samples kept at {fa:g} Hz (one grid sample in {step}, "
                      "after an anti-alias filter)")
     motion_g = motion_magnitude(rec, grid, cfg.max_interp_s)
-    x = to_grid(grid, rec.time_s, rec.channels["eda_us"], cfg.max_interp_s)
-    columns, scrs, shares, methods = _skin_conductance(x, fs, step, times_a, motion_g,
-                                                       cfg, notes)
+    eda = rec.channels["eda_us"]
+    x = to_grid(grid, rec.time_s, eda, cfg.max_interp_s)
+    # a complete channel comes back as the recording's own array, which is never
+    # written to; any other x is a copy of our own, whose gaps can be bridged in place
+    columns, scrs, shares, methods = _skin_conductance(x, x is not eda, fs, step, times_a,
+                                                       motion_g, cfg, notes)
     del x
 
     hr = heart_rate(rec.time_s, rec.channels, times_a, fa, cfg.hr, cfg.max_interp_s)
@@ -129,10 +145,11 @@ def process_recording(rec: Recording, cfg: SignalSettings) -> SessionSignals:
                           methods=methods, sampling_rate_hz=fa, notes=notes)
 
 
-def _skin_conductance(x: np.ndarray, fs: float, step: int, times_a: np.ndarray,
-                      motion_g: np.ndarray | None, cfg: SignalSettings, notes: list[str]
-                      ) -> tuple[dict, pd.DataFrame, dict, dict]:
-    """Steps 2-5 on the grid's skin conductance; the columns are at the kept rate."""
+def _skin_conductance(x: np.ndarray, x_is_ours: bool, fs: float, step: int,
+                      times_a: np.ndarray, motion_g: np.ndarray | None, cfg: SignalSettings,
+                      notes: list[str]) -> tuple[dict, pd.DataFrame, dict, dict]:
+    """Steps 2-5 on the grid's skin conductance ``x`` (its gaps are bridged in place
+    when ``x_is_ours``, else in a copy); the columns are at the kept rate."""
     n_a = times_a.size
     fa = fs / step
     empty_scrs = pd.DataFrame({c: np.zeros(0) for c in SCR_COLUMNS})
@@ -161,7 +178,7 @@ def _skin_conductance(x: np.ndarray, fs: float, step: int, times_a: np.ndarray,
     if fc < cfg.eda.lowpass_hz:
         notes.append(f"low-pass cut-off lowered to {fc:g} Hz for a {fa:g} Hz signal")
     lp_cfg = cfg.eda.model_copy(update={"lowpass_hz": fc})
-    gap_free = bridged(x, validity)
+    gap_free = bridged(x, validity, in_place=x_is_ours)
     kept = decimate_cic(gap_free, step)
     del gap_free
     cleaned = lowpass_butterworth(kept, fa, lp_cfg)

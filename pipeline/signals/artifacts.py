@@ -163,6 +163,9 @@ def clipping(raw: RawEda, cfg: EdaSettings) -> np.ndarray:
 def motion(raw: RawEda, cfg: EdaSettings) -> np.ndarray:
     """Samples where the accelerometer magnitude, averaged over ``motion_window_s``,
     deviates from 1 g by more than ``motion_max_g`` (no accelerometer: none).
+
+    Sample i is judged on the w samples from max(i - w // 2, 0) on (fewer at the end of
+    the recording), missing samples left out.
     """
     n = raw.x.size
     if raw.motion_g is None:
@@ -170,14 +173,46 @@ def motion(raw: RawEda, cfg: EdaSettings) -> np.ndarray:
     m = raw.motion_g
     have = np.isfinite(m)
     w = max(1, int(round(cfg.motion_window_s * raw.fs)))
-    csum = np.concatenate(([0.0], np.cumsum(np.where(have, m, 0.0))))
-    ccount = np.concatenate(([0], np.cumsum(have)))
-    lo = np.clip(np.arange(n) - w // 2, 0, n)
-    hi = np.clip(lo + w, 0, n)
-    count = ccount[hi] - ccount[lo]
+    half = w // 2
+    # The first half + 1 samples share the window that starts at 0; after that each
+    # sample has its own. So the test runs once per window start 0 .. n_starts - 1 and
+    # every sample takes the verdict of its window.
+    n_starts = max(n - half, 1)
+    # Window sums from running totals: run_count[k] is how many of the first k
+    # samples are present, run[k] their sum (a missing sample counts as 0).
+    run_count = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(have, out=run_count[1:])
+    count = _window_sums(run_count, w, n_starts)
+    del run_count
+    run = np.zeros(n + 1)
+    np.copyto(run[1:], m, where=have)
+    np.cumsum(run[1:], out=run[1:])
+    total = _window_sums(run, w, n_starts)
+    del run
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = (csum[hi] - csum[lo]) / count
-    return (count > 0) & (mean > cfg.motion_max_g)
+        mean = np.divide(total, count, out=total)
+    verdict = mean > cfg.motion_max_g
+    verdict &= count > 0
+    flagged = np.empty(n, dtype=bool)
+    flagged[: half + 1] = verdict[0]
+    flagged[half + 1:] = verdict[1:]
+    return flagged
+
+
+def _window_sums(run: np.ndarray, w: int, n_starts: int) -> np.ndarray:
+    """Sum of the w values from s on (fewer at the end), s = 0 .. n_starts - 1, from
+    their running totals ``run`` (``run[k]``: the sum of the first k values).
+
+    Each sum is a difference of two running totals, taken on slices so that no
+    index arrays are needed.
+    """
+    n = run.size - 1
+    out = np.empty(n_starts, dtype=run.dtype)
+    # windows s < whole lie inside the values; the later ones are cut at their end
+    whole = min(n_starts, max(n - w + 1, 0))
+    np.subtract(run[w: w + whole], run[:whole], out=out[:whole])
+    np.subtract(run[n], run[whole:n_starts], out=out[whole:])
+    return out
 
 
 ARTIFACT_RULES: dict[str, RuleFn] = {
@@ -252,10 +287,11 @@ def assess(raw: RawEda, cfg: EdaSettings, max_interp_s: float) -> Validity:
     return Validity(invalid=invalid, repaired=(rs, re_), masked=(ms, me), shares=shares)
 
 
-def bridged(x: np.ndarray, validity: Validity) -> np.ndarray:
+def bridged(x: np.ndarray, validity: Validity, in_place: bool = False) -> np.ndarray:
     """A gap-free copy of ``x`` for filtering: glitches and invalid stretches replaced
-    by straight lines between their neighbours (the invalid ones stay masked later)."""
-    out = np.array(x, dtype=float, copy=True)
+    by straight lines between their neighbours (the invalid ones stay masked later).
+    With ``in_place=True`` ``x`` itself is filled and returned (no copy)."""
+    out = x if in_place else np.array(x, dtype=float, copy=True)
     fill_linear(out, *validity.repaired)
     fill_linear(out, *validity.masked)
     return out

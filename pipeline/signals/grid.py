@@ -89,19 +89,20 @@ def interp_within(t: np.ndarray, tx: np.ndarray, vx: np.ndarray,
 
 
 def to_grid(grid: Grid, time_s: np.ndarray, values: np.ndarray,
-            max_interp_s: float) -> np.ndarray:
+            max_interp_s: float, copy: bool = False) -> np.ndarray:
     """One channel on the grid: NaN where it has no sample within reach.
 
     On a recording whose time axis is the grid the channel is returned as it is when
-    complete; runs of missing samples no longer than ``max_interp_s`` are bridged by
-    straight lines (in a copy). Otherwise each grid point is linearly interpolated
-    between the channel's two neighbouring samples when they are at most
-    ``max_interp_s`` apart, else NaN.
+    complete (a copy with ``copy=True``, for a caller that writes into the result);
+    runs of missing samples no longer than ``max_interp_s`` are bridged by straight
+    lines (in a copy). Otherwise each grid point is linearly interpolated between the
+    channel's two neighbouring samples when they are at most ``max_interp_s`` apart,
+    else NaN.
     """
     if grid.same_as_input:
         missing = np.isnan(values)
         if not missing.any():
-            return values
+            return np.array(values, dtype=float, copy=True) if copy else values
         s, e = runs_of(missing)
         # a gap of k missing samples spans k + 1 sample steps
         short = ((e - s + 1) <= max_interp_s * grid.fs + 1e-9) & (s > 0) & (e < values.size)

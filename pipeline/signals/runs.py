@@ -13,17 +13,15 @@ import numpy as np
 def runs_of(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Start (inclusive) and end (exclusive) indices of the True runs of ``mask``."""
     mask = np.asarray(mask, dtype=bool)
-    if mask.size == 0:
-        empty = np.zeros(0, dtype=np.int64)
-        return empty, empty
-    edges = np.flatnonzero(mask[1:] != mask[:-1]) + 1
-    starts = edges[~mask[edges - 1]] if edges.size else edges
-    ends = edges[mask[edges - 1]] if edges.size else edges
-    if mask[0]:
-        starts = np.r_[0, starts]
-    if mask[-1]:
-        ends = np.r_[ends, mask.size]
-    return starts.astype(np.int64), ends.astype(np.int64)
+    # With a False added at both ends, the steps of the mask as 0/1 are +1 where a run
+    # starts and -1 just past where one ends (one byte per sample throughout, so a
+    # mask that flips every few samples stays cheap)
+    padded = np.zeros(mask.size + 2, dtype=np.int8)
+    padded[1:-1] = mask
+    change = np.diff(padded)
+    starts = np.flatnonzero(change == 1)
+    ends = np.flatnonzero(change == -1)
+    return starts.astype(np.int64, copy=False), ends.astype(np.int64, copy=False)
 
 
 def merge_runs(starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -9,7 +9,7 @@ from signal_builders import recording, settings
 from pipeline.config import EdaSettings, SignalSettings
 from pipeline.errors import ConfigError
 from pipeline.signals import process_recording
-from pipeline.signals.artifacts import ARTIFACT_RULES, RawEda, assess
+from pipeline.signals.artifacts import ARTIFACT_RULES, RawEda, assess, bridged
 
 FS = 32.0
 SECONDS = 300.0
@@ -204,3 +204,43 @@ def test_all_invalid_recording_does_not_crash():
     assert not out.samples["eda_valid"].any()
     assert out.invalid_share["out_of_range"] == 1.0
     assert len(out.scrs) == 0
+
+
+def _motion_by_loop(m: np.ndarray, fs: float, cfg: EdaSettings) -> np.ndarray:
+    """The motion rule written out one sample at a time (the reference)."""
+    n = m.size
+    w = max(1, round(cfg.motion_window_s * fs))
+    out = np.zeros(n, dtype=bool)
+    for i in range(n):
+        lo = max(i - w // 2, 0)
+        window = m[lo: min(lo + w, n)]
+        window = window[np.isfinite(window)]
+        out[i] = window.size > 0 and window.mean() > cfg.motion_max_g
+    return out
+
+
+@pytest.mark.parametrize("n", [0, 1, 5, 31, 32, 33, 200, 1000])
+@pytest.mark.parametrize("fs", [4.0, 32.0])
+def test_motion_rule_matches_a_sample_by_sample_average(n, fs):
+    rng = np.random.default_rng(n)
+    m = np.abs(rng.normal(0.0, 0.35, n))
+    m[rng.random(n) < 0.15] = np.nan  # missing samples are left out of the average
+    m[n // 2: n // 2 + 40] = np.nan    # and a gap longer than the window
+    cfg = EdaSettings(motion_window_s=1.0, motion_max_g=0.3)
+    raw = RawEda(np.full(n, 5.0), fs, m)
+    got = ARTIFACT_RULES["motion"](raw, cfg)
+    assert got.dtype == bool and got.shape == (n,)
+    assert np.array_equal(got, _motion_by_loop(m, fs, cfg))
+
+
+def test_bridging_in_place_fills_the_array_itself():
+    _, x = _base()
+    x[1000:1010] = np.nan  # a short gap: bridged
+    x[3000:3400] = np.nan  # a long one: bridged for filtering, masked later
+    validity = assess(RawEda(x, FS), EdaSettings(), 2.0)
+    copy = bridged(x, validity)
+    assert np.isnan(x).any()  # the copy leaves x alone
+    filled = bridged(x, validity, in_place=True)
+    assert filled is x
+    assert np.array_equal(filled, copy)
+    assert np.isfinite(filled).all()

@@ -74,3 +74,13 @@ def test_irregular_recording_is_processed_on_a_uniform_grid():
     steps = np.diff(out.samples["time_s"].to_numpy())
     assert np.allclose(steps, steps[0])
     assert out.samples["eda_valid"].all()
+
+
+def test_copy_gives_a_channel_of_its_own():
+    t = np.arange(100) / 4.0
+    x = np.linspace(1.0, 2.0, t.size)
+    grid = make_grid(t, None)
+    assert to_grid(grid, t, x, 2.0) is x  # complete: handed back as it is
+    own = to_grid(grid, t, x, 2.0, copy=True)
+    assert not np.shares_memory(own, x)
+    assert np.array_equal(own, x)

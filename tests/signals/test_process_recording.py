@@ -12,7 +12,13 @@ from signal_builders import recording, scr_train
 
 from pipeline.config import SignalSettings
 from pipeline.ingest.recordings import read_recording
-from pipeline.signals import describe_methods, process_recording
+from pipeline.signals import (
+    block_mean,
+    describe_methods,
+    motion_magnitude,
+    process_recording,
+)
+from pipeline.signals.grid import make_grid, to_grid
 from pipeline.signals.scr import SCR_COLUMNS
 
 DEMO = Path(__file__).resolve().parents[2] / "synthetic_diaries" / "demo"
@@ -102,3 +108,39 @@ def test_demo_figures_lie_in_the_handbooks_typical_ranges():
     assert 1.0 <= d["per_min"].median() <= 3.0
     assert 1.0 <= d["rise"].median() <= 3.0
     assert 2.0 <= d["half"].median() <= 10.0
+
+
+@pytest.mark.parametrize("step", [1, 3, 4, 8, 25])
+def test_block_mean_is_the_mean_of_each_block_ignoring_missing_samples(step):
+    rng = np.random.default_rng(step)
+    a = rng.normal(0.2, 0.1, 1003)
+    a[rng.random(a.size) < 0.2] = np.nan
+    a[100:150] = np.nan  # whole blocks missing
+    got = block_mean(a, step)
+    starts = np.arange(0, a.size, step)
+    assert got.size == starts.size
+    for i, s in enumerate(starts):
+        block = a[s: s + step]
+        if np.isnan(block).all():
+            assert np.isnan(got[i])
+        else:
+            assert got[i] == pytest.approx(np.nanmean(block), rel=1e-12)
+
+
+def test_motion_magnitude_is_the_deviation_of_the_acceleration_from_1_g():
+    rng = np.random.default_rng(3)
+    t = np.arange(2000) / 32.0
+    acc = {a: rng.normal(0.0, 0.6, t.size) for a in ("acc_x", "acc_y", "acc_z")}
+    acc["acc_x"][500:510] = np.nan  # short gap: bridged on the grid
+    acc["acc_y"][900:1200] = np.nan  # long gap: no magnitude there
+    rec = recording(t, np.full(t.size, 5.0), **acc)
+    before = {a: v.copy() for a, v in acc.items()}
+    grid = make_grid(rec.time_s, None)
+    got = motion_magnitude(rec, grid, 2.0)
+    x, y, z = (to_grid(grid, rec.time_s, rec.channels[a], 2.0) for a in acc)
+    expect = np.abs(np.hypot(np.hypot(x, y), z) - 1.0)
+    assert np.allclose(got, expect, rtol=1e-12, atol=1e-15, equal_nan=True)
+    assert np.isnan(got[900:1200]).all() and np.isfinite(got[500:510]).all()
+    for a in acc:  # the recording's own arrays are left alone
+        assert np.array_equal(rec.channels[a], before[a], equal_nan=True)
+    assert motion_magnitude(recording(t, np.full(t.size, 5.0)), grid, 2.0) is None

@@ -94,10 +94,13 @@ def add_arousal(timeline: pd.DataFrame, mean: float, sd: float, cfg: ArousalSett
     Returns
     -------
     DataFrame
-        A copy of ``timeline`` with ``arousal`` set.
+        A copy of ``timeline`` with ``arousal`` set. The copy is shallow: its other
+        columns share the input's data (a deep copy of an hours-long timeline cost more
+        than the z-score itself); the input is not changed, as long as neither frame
+        is written to in place.
     """
-    out = timeline.copy()
-    flags = list(out.attrs.get("flags", []))
+    out = timeline.copy(deep=False)
+    flags = list(timeline.attrs.get("flags", []))
     usable = np.isfinite(mean) and np.isfinite(sd) and sd > 0 and (n is None or n >= 2)
     if usable:
         z = (arousal_source(timeline, cfg).to_numpy(dtype=float) - mean) / sd
@@ -106,8 +109,8 @@ def add_arousal(timeline: pd.DataFrame, mean: float, sd: float, cfg: ArousalSett
         z = np.full(len(out), np.nan)
         if FLAG_NOT_STANDARDISED not in flags:
             flags.append(FLAG_NOT_STANDARDISED)
-    out["arousal"] = z
-    out.attrs["flags"] = flags
+    out["arousal"] = z  # a new column array: the input's arousal, if any, is untouched
+    out.attrs = {**out.attrs, "flags": flags}  # a new dict: the input's attrs stay as they were
     return out
 
 
@@ -158,7 +161,7 @@ def state_arousal(timeline: pd.DataFrame, cfg: ArousalSettings) -> pd.DataFrame:
         raise StageError("timeline has no 'arousal' column", stage="metrics",
                          hint="run metrics.arousal.add_arousal on the participant's sessions first")
     coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    state = timeline["state"].astype("string").fillna("").to_numpy(dtype=object)
+    state = timeline["state"].to_numpy(dtype=object, na_value="")
     valid = _valid(timeline)
     hr_valid = timeline["hr_valid"].fillna(False).to_numpy(dtype=bool)
     arousal = timeline["arousal"].to_numpy(dtype=float)

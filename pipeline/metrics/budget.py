@@ -5,9 +5,15 @@ in view, its ``attended_seconds`` those it was the attended platform. A second c
 for a group when any of the group's platforms is in view (once, however many are) or
 when the attended platform belongs to the group. Bouts and dwell medians come from the
 attention bouts of :func:`pipeline.metrics.switching.find_bouts`.
+
+A session has hours of seconds but only a handful of distinct in-view combinations and
+attended platforms, so the seconds are counted once per distinct value
+(:func:`_seen_codes`) and everything after that is arithmetic on those few counts.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -18,54 +24,108 @@ from pipeline.metrics.dwell import km_median
 UNGROUPED = "ungrouped"
 
 
-def _platform_list(timeline: pd.DataFrame, bouts: pd.DataFrame,
-                   platform_groups: dict[str, str]) -> list[str]:
+@dataclass(frozen=True)
+class _SeenCodes:
+    """What the coded seconds of one session show, counted per distinct value."""
+
+    platforms: list[str]          # every platform: vocabulary, in view, attended, bouts; sorted
+    in_view: np.ndarray           # distinct in-view combinations x platforms, True = in view
+    combo_seconds: np.ndarray     # coded seconds of each distinct combination
+    attended_seconds: np.ndarray  # coded seconds each platform was attended, by platform
+
+
+def _distinct_counts(values: pd.Series, coded: np.ndarray) -> dict[str, int]:
+    """Coded seconds per distinct value (as text) of ``values``; NA left out."""
+    codes, uniques = pd.factorize(values)  # NA -> -1
+    counts = np.bincount(codes[coded & (codes >= 0)], minlength=len(uniques))
+    out: dict[str, int] = {}
+    for value, n in zip(np.asarray(uniques, dtype=object), counts):
+        if n:  # a value only uncoded seconds have does not count
+            out[str(value)] = out.get(str(value), 0) + int(n)
+    return out
+
+
+def _seen_codes(timeline: pd.DataFrame, bouts: pd.DataFrame,
+                platform_groups: dict[str, str]) -> _SeenCodes:
     coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    seen = set(platform_groups)
-    # a session has few distinct in-view combinations: split each once
-    for cell in timeline.loc[coded, "in_view"].dropna().unique():
-        seen.update(c for c in str(cell).split(";") if c)
-    seen.update(str(c) for c in timeline.loc[coded, "attended"].dropna().unique() if c)
+    combos = _distinct_counts(timeline["in_view"], coded)
+    split = [[c for c in combo.split(";") if c] for combo in combos]
+    attended = _distinct_counts(timeline["attended"], coded)
+    attended.pop("", None)  # '' is a coded second with nothing attended
+    seen = set(platform_groups).union(*split, attended)
     seen.update(bouts["platform"].astype(str).unique())
-    return sorted(seen)
-
-
-def _in_view_matrix(timeline: pd.DataFrame, platforms: list[str]) -> pd.DataFrame:
-    """Coded seconds x platforms, 1 where the platform is in view."""
-    coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    in_view = timeline.loc[coded, "in_view"].fillna("")
-    rows, combos = pd.factorize(in_view)
+    platforms = sorted(seen)
     column = {p: j for j, p in enumerate(platforms)}
-    table = np.zeros((max(len(combos), 1), len(platforms)), dtype=np.int64)
-    for u, cell in enumerate(combos):  # one iteration per distinct combination
-        for code in str(cell).split(";"):
-            if code in column:
-                table[u, column[code]] = 1
-    return pd.DataFrame(table[rows] if len(rows) else np.zeros((0, len(platforms)), np.int64),
-                        columns=platforms, index=in_view.index)
+    in_view = np.zeros((len(split), len(platforms)), dtype=bool)
+    for u, codes in enumerate(split):
+        in_view[u, [column[c] for c in codes]] = True
+    return _SeenCodes(
+        platforms=platforms,
+        in_view=in_view,
+        combo_seconds=np.fromiter(combos.values(), dtype=np.int64, count=len(combos)),
+        attended_seconds=np.array([attended.get(p, 0) for p in platforms], dtype=np.int64),
+    )
 
 
-def _bout_summary(bouts: pd.DataFrame, key: pd.Series) -> pd.DataFrame:
-    """bouts, censored_bouts and KM dwell median per value of ``key`` (aligned to bouts)."""
-    rows = {}
+def _bout_summary(bouts: pd.DataFrame, key: pd.Series, index: list[str]
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """bouts, censored_bouts and KM dwell median per value of ``index``.
+
+    ``key`` gives each bout's platform (or group), aligned to ``bouts``; a value of
+    ``index`` without bouts gets 0, 0 and NaN.
+    """
     observed = ~bouts["censored"].to_numpy(dtype=bool)
     durations = bouts["duration_s"].to_numpy(dtype=float)
     keys = key.to_numpy(dtype=object)
-    for k in pd.unique(keys):  # one iteration per platform (or group), not per second
+    n_bouts = np.zeros(len(index), dtype=np.int64)
+    n_censored = np.zeros(len(index), dtype=np.int64)
+    median = np.full(len(index), np.nan)
+    for i, k in enumerate(index):  # one iteration per platform (or group), not per second
         sel = keys == k
-        rows[k] = {
-            "bouts": int(sel.sum()),
-            "censored_bouts": int((~observed[sel]).sum()),
-            "dwell_median_s": km_median(durations[sel], observed[sel]),
-        }
-    table = pd.DataFrame.from_dict(rows, orient="index",
-                                   columns=["bouts", "censored_bouts", "dwell_median_s"])
-    return table.astype({"bouts": np.int64, "censored_bouts": np.int64, "dwell_median_s": float})
+        if sel.any():
+            n_bouts[i] = sel.sum()
+            n_censored[i] = (~observed[sel]).sum()
+            median[i] = km_median(durations[sel], observed[sel])
+    return n_bouts, n_censored, median
 
 
-def _counts(values: pd.Series, index: list[str]) -> np.ndarray:
-    """``values`` (a count per key) read at ``index``, 0 where a key is missing."""
-    return values.reindex(index, fill_value=0).astype(np.int64).to_numpy()
+def _platform_table(seen: _SeenCodes, bouts: pd.DataFrame,
+                    platform_groups: dict[str, str]) -> pd.DataFrame:
+    platforms = seen.platforms
+    n_bouts, n_censored, median = _bout_summary(bouts, bouts["platform"].astype(str),
+                                                platforms)
+    return pd.DataFrame({
+        "platform": platforms,
+        "group": [platform_groups.get(p, UNGROUPED) for p in platforms],
+        "in_view_seconds": seen.combo_seconds @ seen.in_view.astype(np.int64),
+        "attended_seconds": seen.attended_seconds,
+        "bouts": n_bouts,
+        "censored_bouts": n_censored,
+        "dwell_median_s": median,
+    })
+
+
+def _group_table(seen: _SeenCodes, bouts: pd.DataFrame,
+                 platform_groups: dict[str, str]) -> pd.DataFrame:
+    group_of = [platform_groups.get(p, UNGROUPED) for p in seen.platforms]
+    groups = sorted(set(group_of))
+    member = np.array([[g == name for name in groups] for g in group_of],
+                      dtype=np.int64).reshape(len(group_of), len(groups))
+    # a combination shows a group when it shows any of the group's platforms, so a
+    # second with two screens of one group counts once for it
+    group_in_view = (seen.in_view.astype(np.int64) @ member) > 0
+    by_platform = dict(zip(seen.platforms, group_of))
+    n_bouts, n_censored, median = _bout_summary(
+        bouts, bouts["platform"].astype(str).map(by_platform), groups)
+    return pd.DataFrame({
+        "group": groups,
+        "platforms": member.sum(axis=0),
+        "in_view_seconds": seen.combo_seconds @ group_in_view.astype(np.int64),
+        "attended_seconds": seen.attended_seconds @ member,
+        "bouts": n_bouts,
+        "censored_bouts": n_censored,
+        "dwell_median_s": median,
+    })
 
 
 def platform_budget(timeline: pd.DataFrame, bouts: pd.DataFrame,
@@ -89,20 +149,8 @@ def platform_budget(timeline: pd.DataFrame, bouts: pd.DataFrame,
         attended_seconds, bouts, censored_bouts, dwell_median_s (Kaplan–Meier median of
         the platform's bouts; NaN without bouts or where survival never reaches 0.5).
     """
-    platforms = _platform_list(timeline, bouts, platform_groups)
-    in_view = _in_view_matrix(timeline, platforms).sum(axis=0)
-    coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    attended = timeline.loc[coded, "attended"].dropna().astype(str)
-    attended_counts = attended[attended != ""].value_counts()
-    summary = _bout_summary(bouts, bouts["platform"].astype(str))
-    out = pd.DataFrame({"platform": platforms})
-    out["group"] = [platform_groups.get(p, UNGROUPED) for p in platforms]
-    out["in_view_seconds"] = _counts(in_view, platforms)
-    out["attended_seconds"] = _counts(attended_counts, platforms)
-    out["bouts"] = _counts(summary["bouts"], platforms)
-    out["censored_bouts"] = _counts(summary["censored_bouts"], platforms)
-    out["dwell_median_s"] = summary["dwell_median_s"].reindex(platforms).astype(float).to_numpy()
-    return out
+    return _platform_table(_seen_codes(timeline, bouts, platform_groups), bouts,
+                           platform_groups)
 
 
 def group_budget(timeline: pd.DataFrame, bouts: pd.DataFrame,
@@ -126,24 +174,12 @@ def group_budget(timeline: pd.DataFrame, bouts: pd.DataFrame,
         One row per group, sorted: group, platforms (how many codes it has),
         in_view_seconds, attended_seconds, bouts, censored_bouts, dwell_median_s.
     """
-    platforms = _platform_list(timeline, bouts, platform_groups)
-    group_of = {p: platform_groups.get(p, UNGROUPED) for p in platforms}
-    groups = sorted(set(group_of.values()))
-    matrix = _in_view_matrix(timeline, platforms)
-    if matrix.shape[1]:
-        any_in_view = (matrix.T.groupby(pd.Series(group_of)).max().T > 0).sum(axis=0)
-    else:
-        any_in_view = pd.Series(dtype=np.int64)
-    coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
-    attended = timeline.loc[coded, "attended"].dropna().astype(str)
-    attended_groups = attended[attended != ""].map(group_of).value_counts()
-    summary = _bout_summary(bouts, bouts["platform"].astype(str).map(group_of))
-    counts = pd.Series(group_of).value_counts()
-    out = pd.DataFrame({"group": groups})
-    out["platforms"] = _counts(counts, groups)
-    out["in_view_seconds"] = _counts(any_in_view, groups)
-    out["attended_seconds"] = _counts(attended_groups, groups)
-    out["bouts"] = _counts(summary["bouts"], groups)
-    out["censored_bouts"] = _counts(summary["censored_bouts"], groups)
-    out["dwell_median_s"] = summary["dwell_median_s"].reindex(groups).astype(float).to_numpy()
-    return out
+    return _group_table(_seen_codes(timeline, bouts, platform_groups), bouts, platform_groups)
+
+
+def time_budget(timeline: pd.DataFrame, bouts: pd.DataFrame,
+                platform_groups: dict[str, str]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """:func:`platform_budget` and :func:`group_budget` together, counting the seconds once."""
+    seen = _seen_codes(timeline, bouts, platform_groups)
+    return (_platform_table(seen, bouts, platform_groups),
+            _group_table(seen, bouts, platform_groups))

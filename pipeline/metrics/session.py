@@ -14,7 +14,7 @@ import pandas as pd
 from pipeline.config import Config
 from pipeline.errors import StageError
 from pipeline.metrics.arousal import FLAG_NOT_STANDARDISED, compression_ratio, state_arousal
-from pipeline.metrics.budget import group_budget, platform_budget
+from pipeline.metrics.budget import time_budget
 from pipeline.metrics.dwell import km_median
 from pipeline.metrics.switching import find_bouts, find_switches
 from pipeline.types import TIMELINE_COLUMNS, SessionInputs, SessionMetrics
@@ -34,11 +34,11 @@ _REQUIRED = ("second", "coded", "in_view", "attended", "n_in_view", "state", "ed
 
 
 def _keyed(table: pd.DataFrame, inputs: SessionInputs) -> pd.DataFrame:
-    out = table.reset_index(drop=True).copy()
-    for i, (col, value) in enumerate(zip(KEY_COLUMNS, (inputs.key.participant_id,
-                                                       inputs.key.session_id, inputs.cohort))):
-        out.insert(i, col, pd.Series([value] * len(out), dtype=object))
-    return out
+    """``table`` with the KEY_COLUMNS put in front (a new frame with a fresh index)."""
+    values = (inputs.key.participant_id, inputs.key.session_id, inputs.cohort)
+    keys = pd.DataFrame({col: np.full(len(table), value, dtype=object)
+                         for col, value in zip(KEY_COLUMNS, values)})
+    return pd.concat([keys, table.reset_index(drop=True)], axis=1)
 
 
 def _check_columns(timeline: pd.DataFrame, inputs: SessionInputs) -> None:
@@ -85,7 +85,7 @@ def session_metrics(timeline: pd.DataFrame, inputs: SessionInputs, cfg: Config) 
     flags: list[str] = []
     coded = timeline["coded"].fillna(False).to_numpy(dtype=bool)
     n_in_view = timeline["n_in_view"].astype("Float64").fillna(0).to_numpy(dtype=float)
-    state = timeline["state"].astype("string").fillna("").to_numpy(dtype=object)
+    state = timeline["state"].to_numpy(dtype=object, na_value="")
     valid = timeline["signal_valid"].fillna(False).to_numpy(dtype=bool)
     hr_valid = timeline["hr_valid"].fillna(False).to_numpy(dtype=bool)
 
@@ -117,8 +117,7 @@ def session_metrics(timeline: pd.DataFrame, inputs: SessionInputs, cfg: Config) 
         flags.append(FLAG_NOT_STANDARDISED)
 
     groups_map = inputs.platform_groups
-    platforms = platform_budget(timeline, bouts, groups_map)
-    groups = group_budget(timeline, bouts, groups_map)
+    platforms, groups = time_budget(timeline, bouts, groups_map)
     bouts_out = bouts.copy()
     bouts_out.insert(1, "group", [groups_map.get(p, "ungrouped") for p in bouts["platform"]])
 

@@ -116,7 +116,7 @@ def switch_locked_session(timeline: pd.DataFrame, switches: pd.DataFrame, rng_se
     events = pd.to_numeric(switches["second"], errors="coerce").dropna().to_numpy(np.int64) \
         if len(switches) else np.empty(0, np.int64)
     coded = timeline["coded"].fillna(False).astype(bool).to_numpy()
-    multi = (timeline["state"].astype("string") == "multi").fillna(False).to_numpy(bool)
+    multi = timeline["state"].to_numpy(dtype=object, na_value="") == "multi"
     pool = sec[coded & multi]
     rng = np.random.default_rng(rng_seed)
     pseudo = rng.choice(pool, size=n_pseudo, replace=True) if len(pool) else \

@@ -63,6 +63,22 @@ def test_one_valid_second_cannot_be_standardised():
     assert out["arousal"].isna().all() and FLAG_NOT_STANDARDISED in out.attrs["flags"]
 
 
+def test_add_arousal_leaves_its_input_as_it_was():
+    # the result shares the input's other columns (a shallow copy): adding arousal and
+    # flags to it must change neither the input's values nor its attrs
+    tl = build_timeline("tttt", eda=[1, 2, 3, 4], valid="1101")
+    tl.attrs["flags"] = ["earlier_flag"]
+    before = tl.copy(deep=True)
+    out = add_arousal(tl, 2.0, 1.0, CFG, n=4)
+    np.testing.assert_allclose(out["arousal"], [-1.0, 0.0, np.nan, 2.0])
+    pd.testing.assert_frame_equal(tl, before)
+    assert tl.attrs == {"flags": ["earlier_flag"]}
+    lost = add_arousal(tl, 2.0, 0.0, CFG)  # sd 0: not standardised, flag added
+    assert lost.attrs["flags"] == ["earlier_flag", FLAG_NOT_STANDARDISED]
+    assert tl.attrs == {"flags": ["earlier_flag"]}
+    pd.testing.assert_frame_equal(tl, before)
+
+
 # ------------------------------------------------------------------ state summaries
 def _state_example():
     # seconds 0-11 single (tv), 5 invalid; 12-17 multi (phone + tv); 18-20 none;

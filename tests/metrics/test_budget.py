@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
+import pytest
 
 from metrics_timelines import build_timeline
 from pipeline.config import DwellSettings, SwitchSettings
-from pipeline.metrics.budget import group_budget, platform_budget
+from pipeline.metrics.budget import group_budget, platform_budget, time_budget
 from pipeline.metrics.switching import find_bouts
 
 GROUPS = {"tv": "broadcast", "phone": "mobile", "laptop": "mobile", "magazine": "print"}
@@ -80,3 +82,61 @@ def test_budget_of_an_uncoded_session_is_zero():
     assert len(p) == 4 and (p[["in_view_seconds", "attended_seconds", "bouts"]] == 0).all().all()
     g = group_budget(tl, bouts, GROUPS)
     assert (g["in_view_seconds"] == 0).all()
+
+
+def _random_timeline(seed: int, n: int = 300):
+    """A timeline with random codes, a few uncoded seconds and some codes missing from
+    the vocabulary (the budget counts distinct values; the reference counts seconds)."""
+    rng = np.random.default_rng(seed)
+    codes = ["tv", "phone", "laptop", "radio"]  # radio is not in GROUPS
+    spec, in_view = [], []
+    for _ in range(n):
+        if rng.random() < 0.05:
+            spec.append("?")
+            in_view.append(None)
+            continue
+        shown = sorted(rng.choice(codes, size=int(rng.integers(0, 3)), replace=False))
+        in_view.append(";".join(shown))
+        spec.append(".")
+    tl = build_timeline("".join(spec), in_view=in_view)
+    # attended: one of the platforms in view, or nothing
+    attended = [None if iv is None else (rng.choice(iv.split(";")) if iv and rng.random() < .8
+                                         else "") for iv in in_view]
+    tl["attended"] = pd.array(attended, dtype="string")
+    return tl
+
+
+def _budget_by_second(tl, groups):
+    """Per-platform and per-group in-view and attended seconds, second by second."""
+    platforms, grouped = {}, {}
+    for coded, iv, att in zip(tl["coded"], tl["in_view"], tl["attended"]):
+        if not coded:
+            continue
+        shown = [c for c in str(iv).split(";") if c] if not pd.isna(iv) else []
+        for c in shown:
+            platforms.setdefault(c, [0, 0])[0] += 1
+        for g in {groups.get(c, "ungrouped") for c in shown}:
+            grouped.setdefault(g, [0, 0])[0] += 1
+        if not pd.isna(att) and att != "":
+            platforms.setdefault(att, [0, 0])[1] += 1
+            grouped.setdefault(groups.get(att, "ungrouped"), [0, 0])[1] += 1
+    return platforms, grouped
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_budget_counts_match_a_second_by_second_count(seed):
+    tl = _random_timeline(seed)
+    bouts = find_bouts(tl, SwitchSettings(), DwellSettings())
+    by_platform, by_group = _budget_by_second(tl, GROUPS)
+    p = platform_budget(tl, bouts, GROUPS).set_index("platform")
+    g = group_budget(tl, bouts, GROUPS).set_index("group")
+    assert list(p.index) == sorted(set(GROUPS) | set(by_platform))
+    for code, row in p.iterrows():
+        assert [row["in_view_seconds"], row["attended_seconds"]] == by_platform.get(code, [0, 0])
+        assert row["bouts"] == (bouts["platform"] == code).sum()
+    for group, row in g.iterrows():
+        assert [row["in_view_seconds"], row["attended_seconds"]] == by_group.get(group, [0, 0])
+    # time_budget is both tables at once
+    both = time_budget(tl, bouts, GROUPS)
+    pd.testing.assert_frame_equal(both[0], platform_budget(tl, bouts, GROUPS))
+    pd.testing.assert_frame_equal(both[1], group_budget(tl, bouts, GROUPS))

@@ -102,3 +102,21 @@ def test_unknown_dwell_method_lists_choices():
         dwell_median([1, 2], [True, True], method="median_of_observed")
     assert "kaplan_meier" in err.value.hint
     assert dwell_median([1, 2, 3], [True] * 3) == 2
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_km_median_is_read_off_the_statsmodels_curve(seed):
+    # km_median computes the product limit itself (without the standard errors); it
+    # must give exactly the median of km_curve's survival column.
+    rng = np.random.default_rng(seed)
+    for _ in range(200):
+        n = int(rng.integers(0, 40))
+        t = rng.integers(1, 10, n).astype(float)  # few distinct lengths: ties, like bouts
+        if n and rng.random() < 0.2:
+            t[rng.integers(0, n)] = np.nan
+        e = rng.random(n) < rng.random()
+        curve = km_curve(t, e)
+        below = np.flatnonzero(curve["survival"].to_numpy() <= 0.5 + 1e-9)
+        expected = float(curve["time_s"].iloc[below[0]]) if len(below) else np.nan
+        got = km_median(t, e)
+        assert got == expected or (np.isnan(got) and np.isnan(expected))

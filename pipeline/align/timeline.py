@@ -38,24 +38,65 @@ class AlignedSession:
     flags: list[str] = field(default_factory=list)
 
 
-def _codes_frame(inputs: SessionInputs) -> pd.DataFrame:
+def _codes_columns(inputs: SessionInputs) -> dict:
+    """Per video second: second, in_view, attended (NA where uncoded), coded, and the
+    media state (:func:`~pipeline.metrics.states.classify_states`)."""
     n = inputs.duration_s
-    frame = pd.DataFrame({"second": np.arange(n, dtype=np.int64)})
-    codes = inputs.codes[["second", "in_view", "attended"]]
-    frame = frame.merge(codes, on="second", how="left", validate="one_to_one")
-    frame["coded"] = frame["in_view"].notna()
-    frame["in_view"] = frame["in_view"].astype("string")
-    frame["attended"] = frame["attended"].astype("string")
-    states = classify_states(frame["in_view"])
-    return pd.concat([frame, states], axis=1)
+    codes = inputs.codes
+    if codes["second"].duplicated().any():
+        raise StageError("the media codes give some second of this session twice",
+                         unit=inputs.key.label(), stage="align",
+                         hint="each coder codes each second once in media_log.csv")
+    # the row of `codes` for each second, -1 for none (codes outside the session are
+    # left out)
+    second = codes["second"].to_numpy(dtype=np.int64)
+    inside = (second >= 0) & (second < n)
+    row = np.full(n, -1, dtype=np.int64)
+    row[second[inside]] = np.flatnonzero(inside)
+    # A session has a few distinct code lists over thousands of seconds: the text work
+    # and the states are done once per distinct value, then spread to the seconds.
+    in_view, in_view_values = _per_second(codes["in_view"], row)
+    attended, attended_values = _per_second(codes["attended"], row)
+    columns = {
+        "second": np.arange(n, dtype=np.int64),
+        "in_view": in_view_values.take(in_view, allow_fill=True),
+        "attended": attended_values.take(attended, allow_fill=True),
+        "coded": in_view >= 0,
+    }
+    states = classify_states(pd.Series(in_view_values))
+    for col in states.columns:
+        columns[col] = states[col].array.take(in_view, allow_fill=True)
+    return columns
 
 
-def _bin_means(second: np.ndarray, values: np.ndarray, ok: np.ndarray, n: int) -> np.ndarray:
-    use = ok & np.isfinite(values)
-    sums = np.bincount(second[use], weights=values[use], minlength=n)[:n]
-    counts = np.bincount(second[use], minlength=n)[:n]
+def _per_second(column: pd.Series, row: np.ndarray
+                ) -> tuple[np.ndarray, pd.api.extensions.ExtensionArray]:
+    """For each second, the position of its value among the distinct values of
+    ``column`` (-1 where ``row`` is -1 or the value is missing), and those distinct
+    values as text (string dtype)."""
+    value_of_row, distinct = pd.factorize(column)  # a missing value -> -1
+    value = np.full(row.size, -1, dtype=np.int64)
+    has = row >= 0
+    value[has] = value_of_row[row[has]]
+    return value, pd.Series(distinct).astype("string").array
+
+
+def _bin_means(second: np.ndarray, values: np.ndarray, use: np.ndarray, n: int
+               ) -> np.ndarray:
+    """Mean of the finite ``values[use]`` in each second 0 .. n - 1 (NaN where none)."""
+    use = use & np.isfinite(values)
+    in_second = second[use]
+    sums = np.bincount(in_second, weights=values[use], minlength=n)[:n]
+    counts = np.bincount(in_second, minlength=n)[:n]
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(counts > 0, sums / counts, np.nan)
+
+
+#: Columns that count only in seconds whose skin conductance is valid.
+_EDA_FEATURES = ("eda_us", "eda_tonic_us", "eda_phasic_us")
+
+_SCR_VIDEO_COLUMNS = ["onset_video_s", "peak_video_s", "amplitude_us", "rise_time_s",
+                      "half_recovery_s"]
 
 
 def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
@@ -78,68 +119,78 @@ def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
         raise StageError("the sync pairs give a sensor clock that runs backwards",
                          unit=key.label(), stage="align",
                          hint="check video_s and sensor_s of this session in sync.csv")
-    frame = _codes_frame(inputs)
     n = inputs.duration_s
-    frame["sensor_s"] = clock.to_sensor(frame["second"].to_numpy(dtype=float))
+    # the columns in the timeline's order, made into one frame at the end
+    columns: dict = {"participant_id": key.participant_id, "session_id": key.session_id}
+    columns.update(_codes_columns(inputs))
+    columns["sensor_s"] = clock.to_sensor(columns["second"].astype(float))
     flags = list(clock.flags())
-    scrs_video = pd.DataFrame(columns=["onset_video_s", "peak_video_s", "amplitude_us",
-                                       "rise_time_s", "half_recovery_s"])
     if signals is None:
         for col in _MEANS:
-            frame[col] = np.nan
-        frame["scr_onsets"] = 0
-        frame["scr_amplitude_sum_us"] = 0.0
-        frame["signal_valid"] = False
-        frame["hr_valid"] = False
+            columns[col] = np.nan
+        columns["scr_onsets"] = 0
+        columns["scr_amplitude_sum_us"] = 0.0
+        columns["signal_valid"] = False
+        columns["hr_valid"] = False
+        scrs_video = pd.DataFrame(columns=_SCR_VIDEO_COLUMNS)
         flags.append("no_recording")
     else:
-        s = signals.samples
-        video = clock.to_video(s["time_s"].to_numpy(dtype=float))
-        sec = np.floor(video).astype(np.int64)
-        inside = (sec >= 0) & (sec < n)
-        sec_in = sec[inside]
-        expected = signals.sampling_rate_hz if np.isfinite(signals.sampling_rate_hz) else 1.0
-        for col, valid_col in _MEANS.items():
-            if col not in s.columns:
-                frame[col] = np.nan
-                continue
-            vals = s[col].to_numpy(dtype=float)[inside]
-            ok = (s[valid_col].to_numpy(dtype=bool)[inside] if valid_col and valid_col in s
-                  else np.ones(len(vals), dtype=bool))
-            frame[col] = _bin_means(sec_in, vals, ok, n)
-        if "eda_valid" in s.columns:
-            good = np.bincount(sec_in[s["eda_valid"].to_numpy(dtype=bool)[inside]],
-                               minlength=n)[:n]
-            frame["signal_valid"] = (good / expected) >= cfg.eda.min_valid_share
-        else:
-            frame["signal_valid"] = False
-        # Heart rate is a slow series, often sampled once a second or once a beat
-        # beside faster EDA: a second has valid HR when it holds a valid HR value.
-        if "hr_valid" in s.columns and "hr_bpm" in s.columns:
-            hr_ok = s["hr_valid"].to_numpy(dtype=bool) & np.isfinite(s["hr_bpm"].to_numpy(float))
-            frame["hr_valid"] = np.bincount(sec_in[hr_ok[inside]], minlength=n)[:n] > 0
-        else:
-            frame["hr_valid"] = False
-        scrs = signals.scrs
-        onset_v = clock.to_video(scrs["onset_s"].to_numpy(dtype=float))
-        keep = (onset_v >= 0) & (onset_v < n)
-        scrs_video = pd.DataFrame({
-            "onset_video_s": onset_v[keep],
-            "peak_video_s": clock.to_video(scrs["peak_s"].to_numpy(dtype=float))[keep],
-            "amplitude_us": scrs["amplitude_us"].to_numpy(dtype=float)[keep],
-            "rise_time_s": scrs["rise_time_s"].to_numpy(dtype=float)[keep],
-            "half_recovery_s": scrs["half_recovery_s"].to_numpy(dtype=float)[keep],
-        })
-        onset_sec = np.floor(onset_v[keep]).astype(np.int64)
-        frame["scr_onsets"] = np.bincount(onset_sec, minlength=n)[:n]
-        frame["scr_amplitude_sum_us"] = np.bincount(
-            onset_sec, weights=scrs_video["amplitude_us"].to_numpy(), minlength=n)[:n]
-        # A second's EDA features only count where the second is valid.
-        for col in ("eda_us", "eda_tonic_us", "eda_phasic_us"):
-            frame.loc[~frame["signal_valid"], col] = np.nan
-        if not inside.any():
+        signal_columns, scrs_video, any_inside = _signal_columns(signals, clock, n, cfg)
+        columns.update(signal_columns)
+        if not any_inside:
             flags.append("recording_outside_session")
-    frame.insert(0, "session_id", key.session_id)
-    frame.insert(0, "participant_id", key.participant_id)
-    frame["arousal"] = np.nan
-    return AlignedSession(timeline=frame, scrs=scrs_video, clock=clock, flags=flags)
+    columns["arousal"] = np.nan
+    timeline = pd.DataFrame(columns)
+    return AlignedSession(timeline=timeline, scrs=scrs_video, clock=clock, flags=flags)
+
+
+def _signal_columns(signals: SessionSignals, clock: ClockMap, n: int, cfg: SignalSettings
+                    ) -> tuple[dict[str, np.ndarray], pd.DataFrame, bool]:
+    """The 1 Hz summary of the samples the clock map places in seconds 0 .. n - 1, the
+    SCRs with their onset inside them (video clock), and whether any sample is."""
+    s = signals.samples
+    video = clock.to_video(s["time_s"].to_numpy(dtype=float))
+    sec = np.floor(video).astype(np.int64)
+    inside = (sec >= 0) & (sec < n)
+    expected = signals.sampling_rate_hz if np.isfinite(signals.sampling_rate_hz) else 1.0
+    if "eda_valid" in s.columns:
+        good = np.bincount(sec[inside & s["eda_valid"].to_numpy(dtype=bool)],
+                           minlength=n)[:n]
+        signal_valid = (good / expected) >= cfg.eda.min_valid_share
+    else:
+        signal_valid = np.zeros(n, dtype=bool)
+    columns = {}
+    for col, valid_col in _MEANS.items():
+        if col not in s.columns:
+            columns[col] = np.full(n, np.nan)
+            continue
+        use = inside
+        if valid_col and valid_col in s.columns:
+            use = inside & s[valid_col].to_numpy(dtype=bool)
+        means = _bin_means(sec, s[col].to_numpy(dtype=float), use, n)
+        if col in _EDA_FEATURES:  # a second's EDA features count only where it is valid
+            means[~signal_valid] = np.nan
+        columns[col] = means
+    columns["signal_valid"] = signal_valid
+    # Heart rate is a slow series, often sampled once a second or once a beat beside
+    # faster EDA: a second has valid HR when it holds a valid HR value.
+    if "hr_valid" in s.columns and "hr_bpm" in s.columns:
+        hr_ok = s["hr_valid"].to_numpy(dtype=bool) & np.isfinite(s["hr_bpm"].to_numpy(float))
+        columns["hr_valid"] = np.bincount(sec[inside & hr_ok], minlength=n)[:n] > 0
+    else:
+        columns["hr_valid"] = np.zeros(n, dtype=bool)
+    scrs = signals.scrs
+    onset_v = clock.to_video(scrs["onset_s"].to_numpy(dtype=float))
+    keep = (onset_v >= 0) & (onset_v < n)
+    scrs_video = pd.DataFrame({
+        "onset_video_s": onset_v[keep],
+        "peak_video_s": clock.to_video(scrs["peak_s"].to_numpy(dtype=float))[keep],
+        "amplitude_us": scrs["amplitude_us"].to_numpy(dtype=float)[keep],
+        "rise_time_s": scrs["rise_time_s"].to_numpy(dtype=float)[keep],
+        "half_recovery_s": scrs["half_recovery_s"].to_numpy(dtype=float)[keep],
+    })
+    onset_sec = np.floor(onset_v[keep]).astype(np.int64)
+    columns["scr_onsets"] = np.bincount(onset_sec, minlength=n)[:n]
+    columns["scr_amplitude_sum_us"] = np.bincount(
+        onset_sec, weights=scrs_video["amplitude_us"].to_numpy(), minlength=n)[:n]
+    return columns, scrs_video, bool(inside.any())

@@ -7,6 +7,7 @@ import pytest
 from pipeline.align.timeline import build_timeline
 from pipeline.config import SignalSettings
 from pipeline.errors import StageError
+from pipeline.metrics.states import classify_states
 from pipeline.types import SessionInputs, SessionKey, SessionSignals
 
 
@@ -99,3 +100,81 @@ def test_heart_rate_sampled_once_a_second_is_valid_beside_faster_eda():
     tl = build_timeline(_inputs(5, []), sig, SignalSettings()).timeline
     assert tl["hr_valid"].all()
     assert tl["hr_bpm"].to_numpy() == pytest.approx([60, 61, 62, 63, 64])
+
+
+def _codes_by_merge(inputs):
+    """The codes part of the timeline the plain way (the reference): a left merge of
+    the codes on the seconds, text columns as strings, states per row."""
+    frame = pd.DataFrame({"second": np.arange(inputs.duration_s, dtype=np.int64)})
+    frame = frame.merge(inputs.codes[["second", "in_view", "attended"]], on="second",
+                        how="left", validate="one_to_one")
+    frame["coded"] = frame["in_view"].notna()
+    frame["in_view"] = frame["in_view"].astype("string")
+    frame["attended"] = frame["attended"].astype("string")
+    return pd.concat([frame, classify_states(frame["in_view"])], axis=1)
+
+
+@pytest.mark.parametrize("as_category", [False, True])
+def test_codes_are_spread_to_seconds_as_a_merge_would(as_category):
+    codes = pd.DataFrame({
+        "second": [7, 0, 1, 3, 4, 5, 6, 9, 12, -1],  # 9, 12, -1 lie outside the session
+        "in_view": ["tv", "phone;tv", "", None, "book;phone;tv", "tv", np.nan, "tv", "tv",
+                    "tv"],
+        "attended": ["tv", "phone", "", "tv", None, "", "tv", "tv", "tv", "tv"],
+    })
+    if as_category:
+        codes = codes.astype({"in_view": "category", "attended": "category"})
+    inputs = _inputs(9, [], codes)
+    tl = build_timeline(inputs, None, SignalSettings()).timeline
+    expect = _codes_by_merge(inputs)
+    pd.testing.assert_frame_equal(tl[expect.columns], expect)
+    assert list(tl["coded"]) == [True, True, False, False, True, True, False, True, False]
+
+
+def test_a_session_without_codes_is_uncoded_throughout():
+    codes = pd.DataFrame({"second": np.zeros(0, dtype=np.int64),
+                          "in_view": np.zeros(0, dtype=object),
+                          "attended": np.zeros(0, dtype=object)})
+    inputs = _inputs(4, [], codes)
+    tl = build_timeline(inputs, None, SignalSettings()).timeline
+    expect = _codes_by_merge(inputs)
+    pd.testing.assert_frame_equal(tl[expect.columns], expect)
+    assert not tl["coded"].any()
+
+
+def test_a_second_coded_twice_is_a_stage_error():
+    codes = pd.DataFrame({"second": [0, 1, 1], "in_view": ["tv", "tv", "phone"],
+                          "attended": ["tv", "tv", "phone"]})
+    with pytest.raises(StageError, match="twice"):
+        build_timeline(_inputs(3, [], codes), None, SignalSettings())
+
+
+COLUMNS_WITH_SIGNALS = [
+    "participant_id", "session_id", "second", "in_view", "attended", "coded", "n_in_view",
+    "state", "fine_state", "sensor_s", "eda_us", "eda_tonic_us", "eda_phasic_us", "hr_bpm",
+    "motion_g", "signal_valid", "hr_valid", "scr_onsets", "scr_amplitude_sum_us", "arousal"]
+
+
+def test_timeline_columns_and_types_are_fixed():
+    t = np.arange(0, 6, 0.25)
+    scrs = pd.DataFrame({"onset_s": [1.5], "peak_s": [3.0], "amplitude_us": [0.2],
+                         "rise_time_s": [1.5], "half_recovery_s": [3.0]})
+    sig = _signals(t, np.full(t.size, 5.0), scrs=scrs)
+    with_signals = build_timeline(_inputs(5, []), sig, SignalSettings()).timeline
+    without = build_timeline(_inputs(5, []), None, SignalSettings()).timeline
+    assert list(with_signals.columns) == COLUMNS_WITH_SIGNALS
+    # without a recording the SCR counts come before the validity columns
+    assert list(without.columns) == COLUMNS_WITH_SIGNALS[:15] + [
+        "scr_onsets", "scr_amplitude_sum_us", "signal_valid", "hr_valid", "arousal"]
+    for tl in (with_signals, without):
+        types = {c: str(t) for c, t in tl.dtypes.items()}
+        assert types["participant_id"] == types["session_id"] == "object"
+        assert types["second"] == types["scr_onsets"] == "int64"
+        text = ("in_view", "attended", "state", "fine_state")
+        assert {types[c] for c in text} == {"string"}
+        assert types["n_in_view"] == "Int64"
+        assert types["coded"] == types["signal_valid"] == types["hr_valid"] == "bool"
+        assert {types[c] for c in ("sensor_s", "eda_us", "eda_tonic_us", "eda_phasic_us",
+                                   "hr_bpm", "motion_g", "scr_amplitude_sum_us",
+                                   "arousal")} == {"float64"}
+        assert isinstance(tl.index, pd.RangeIndex)

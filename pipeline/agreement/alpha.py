@@ -25,16 +25,22 @@ def value_counts_by_unit(codes: pd.DataFrame, categories: list[str] | None = Non
     counts, categories
         ``counts[u, c]`` = how many coders gave unit ``u`` the label ``categories[c]``.
     """
-    long = codes.stack(future_stack=True).dropna()
+    # Units are many (every second of every session when pooled), labels few:
+    # factorize all cells at once and name each distinct label once (as text).
+    n_units, n_coders = codes.shape
+    cell, distinct = pd.factorize(codes.to_numpy(dtype=object).ravel())  # NA -> -1
+    texts = [str(v) for v in np.asarray(distinct, dtype=object)]
     if categories is None:
-        categories = sorted(pd.unique(long.astype(str)).tolist())
+        categories = sorted(set(texts))
     index = {c: i for i, c in enumerate(categories)}
-    unit_pos = pd.Series(np.arange(len(codes)), index=codes.index)
-    u = unit_pos.loc[long.index.get_level_values(0)].to_numpy()
-    c = long.astype(str).map(index).to_numpy()
     k = len(categories)
-    flat = np.bincount(u.astype(np.int64) * k + c.astype(np.int64), minlength=len(codes) * k)
-    return flat.reshape(len(codes), k), categories
+    labelled = cell >= 0
+    c = np.array([index.get(t, -1) for t in texts], dtype=np.int64)[cell[labelled]]
+    if (c < 0).any():
+        raise ValueError("a label is missing from the category list")
+    u = np.repeat(np.arange(n_units, dtype=np.int64), n_coders)[labelled]  # cells by row
+    flat = np.bincount(u * k + c, minlength=n_units * k)
+    return flat.reshape(n_units, k), categories
 
 
 def coincidence_matrix(counts: np.ndarray) -> np.ndarray:

@@ -58,11 +58,12 @@ def candidate_pairs(a: pd.DataFrame, b: pd.DataFrame, tolerance_s: float) -> pd.
                           "distance_s": pd.Series(dtype=float)})
     if len(a) == 0 or len(b) == 0:
         return empty
-    kinds = pd.MultiIndex.from_frame(
-        pd.concat([a[["from_platform", "to_platform"]], b[["from_platform", "to_platform"]]])
-        .astype(str)
-    )
-    kind_code, _ = pd.factorize(kinds)
+    # a switch's kind is its (from, to) pair of platforms, numbered the same for A and B
+    froms, _ = pd.factorize(np.concatenate([a["from_platform"].astype(str).to_numpy(),
+                                            b["from_platform"].astype(str).to_numpy()]))
+    tos, to_names = pd.factorize(np.concatenate([a["to_platform"].astype(str).to_numpy(),
+                                                 b["to_platform"].astype(str).to_numpy()]))
+    kind_code = froms.astype(np.int64) * len(to_names) + tos
     ka, kb = kind_code[: len(a)], kind_code[len(a):]
     ta = a["time_s"].to_numpy(dtype=float)
     tb = b["time_s"].to_numpy(dtype=float)
@@ -121,10 +122,16 @@ def match_optimal(cand: pd.DataFrame, n_a: int, n_b: int) -> pd.DataFrame:
     lone = per_comp[comp] == 1
     chosen_a: list[np.ndarray] = [ia[lone]]
     chosen_b: list[np.ndarray] = [ib[lone]]
-    for _, grp in cand[~lone].assign(comp=comp[~lone]).groupby("comp", sort=True):
-        ua, ra = np.unique(grp["ia"].to_numpy(), return_inverse=True)
-        ub, rb = np.unique(grp["ib"].to_numpy(), return_inverse=True)
-        dist = grp["distance_s"].to_numpy()
+    distance = cand["distance_s"].to_numpy()
+    # candidate rows of the other groups, group by group (numpy, not a pandas groupby:
+    # a session has hundreds of small groups)
+    rest = np.flatnonzero(~lone)
+    rest = rest[np.argsort(comp[rest], kind="stable")]
+    groups = np.split(rest, np.flatnonzero(np.diff(comp[rest])) + 1) if len(rest) else []
+    for grp in groups:
+        ua, ra = np.unique(ia[grp], return_inverse=True)
+        ub, rb = np.unique(ib[grp], return_inverse=True)
+        dist = distance[grp]
         forbidden = float(dist.max()) * min(len(ua), len(ub)) + 1.0
         cost = np.full((len(ua), len(ub)), forbidden)
         cost[ra, rb] = dist
@@ -209,9 +216,11 @@ def compare_switches(a: pd.DataFrame, b: pd.DataFrame, tolerance_s: float,
     a = _check_events(a, "coder A")
     b = _check_events(b, "coder B")
     cand = candidate_pairs(a, b, tolerance_s)
-    chosen = fn(cand, len(a), len(b)).sort_values(["ia", "ib"]).reset_index(drop=True)
+    chosen = fn(cand, len(a), len(b))
     ia = chosen["ia"].to_numpy(dtype=np.int64)
     ib = chosen["ib"].to_numpy(dtype=np.int64)
+    order = np.lexsort((ib, ia))  # pairs in order of A's switch, then B's
+    ia, ib = ia[order], ib[order]
     ta = a["time_s"].to_numpy(dtype=float)[ia]
     tb = b["time_s"].to_numpy(dtype=float)[ib]
     pairs = pd.DataFrame({

@@ -37,16 +37,33 @@ def contingency_table(a: pd.Series | np.ndarray, b: pd.Series | np.ndarray,
     b = np.asarray(b, dtype=object)
     if a.shape != b.shape:
         raise ValueError(f"coders label different numbers of units ({a.size} vs {b.size})")
+    # Units are many (the seconds of a session), labels few: factorize both coders'
+    # labels together, then look each distinct label up once.
+    codes, uniques = pd.factorize(np.concatenate([a, b]), use_na_sentinel=True)
+    if (codes < 0).any():
+        raise ValueError("a label is missing (NA): every unit needs a label of both coders")
+    distinct = np.asarray(uniques, dtype=object).tolist()
     if categories is None:
-        categories = sorted(set(a.tolist()) | set(b.tolist()))
+        categories = sorted(distinct)
     index = {c: i for i, c in enumerate(categories)}
     k = len(categories)
-    ia = pd.Series(a).map(index).to_numpy()
-    ib = pd.Series(b).map(index).to_numpy()
-    if pd.isna(ia).any() or pd.isna(ib).any():
+    position = np.array([index.get(u, -1) for u in distinct], dtype=np.int64)[codes]
+    return contingency_table_of_codes(position[: a.size], position[a.size:], k), list(categories)
+
+
+def contingency_table_of_codes(ia: np.ndarray, ib: np.ndarray, k: int) -> np.ndarray:
+    """:func:`contingency_table` of labels given as category positions 0..k-1.
+
+    For callers that hold many units' labels as small integers already; a position
+    outside 0..k-1 (e.g. -1 for a missing label) is refused.
+    """
+    ia = np.asarray(ia, dtype=np.int64)
+    ib = np.asarray(ib, dtype=np.int64)
+    if ia.shape != ib.shape:
+        raise ValueError(f"coders label different numbers of units ({ia.size} vs {ib.size})")
+    if ((ia < 0) | (ia >= k) | (ib < 0) | (ib >= k)).any():
         raise ValueError("a label is missing from the category list")
-    flat = np.bincount(ia.astype(np.int64) * k + ib.astype(np.int64), minlength=k * k)
-    return flat.reshape(k, k), list(categories)
+    return np.bincount(ia * k + ib, minlength=k * k).reshape(k, k)
 
 
 def observed_agreement(table: np.ndarray) -> float:

@@ -30,16 +30,16 @@ import pandas as pd
 from pipeline.agreement.alpha import krippendorff_alpha_nominal, value_counts_by_unit
 from pipeline.agreement.events import compare_switches
 from pipeline.agreement.kappa import (
-    contingency_table,
+    contingency_table_of_codes,
     kappa,
     landis_koch_band,
     observed_agreement,
 )
 from pipeline.config import AgreementSettings, DwellSettings, SwitchSettings
 from pipeline.errors import StageError
-from pipeline.metrics.states import classify_states
+from pipeline.metrics.states import state_codes
 from pipeline.metrics.switching import find_bouts, find_switches
-from pipeline.types import SessionKey
+from pipeline.types import STATES, SessionKey
 
 #: Label of a second with nothing attended, in the agreement tables.
 NONE = "none"
@@ -90,28 +90,86 @@ class SessionAgreement:
     state_labels: pd.DataFrame | None = None
 
 
-def _wide(codes: pd.DataFrame, column: str, coders: list[str], duration_s: int) -> pd.DataFrame:
-    """Seconds 0..duration-1 by coders table of one code column (NA = not coded)."""
-    wide = codes.pivot(index="second", columns="coder", values=column)
-    return wide.reindex(index=pd.RangeIndex(duration_s, name="second"), columns=coders)
+@dataclass(frozen=True)
+class CoderCodes:
+    """One coder's codes of one session, by second 0..n-1.
 
-
-def coder_timeline(in_view: pd.Series, attended: pd.Series, keep: np.ndarray) -> pd.DataFrame:
-    """A per-second timeline of one coder, for the run's bout and switch functions.
-
-    ``in_view`` and ``attended`` are indexed by second 0..n-1 (NA where this coder
-    did not code the second); ``keep`` marks the seconds to treat as coded (those
-    both coders of a pair coded). Signal validity plays no part in coder agreement,
-    so ``signal_valid`` is True throughout.
+    Built once per coder by :func:`session_agreement` and shared by every pair the
+    coder is in. Labels and states are small integers, so that tabulating hours of
+    seconds is a count of integers rather than of strings.
     """
-    coded = keep & attended.notna().to_numpy()
+
+    attended: np.ndarray   # object: attended platform ('' for none), NaN where not coded
+    label: np.ndarray      # int: position of the attended label in label_names, -1 not coded
+    label_names: list[str]  # the session's attended labels ('none' for none), sorted
+    state: np.ndarray      # int: position of the state in STATES, -1 where not coded
+    coded: np.ndarray      # bool: the coder coded the second (attended not missing)
+
+
+def _coder_columns(key: SessionKey, codes: pd.DataFrame,
+                   duration_s: int) -> tuple[list[str], np.ndarray]:
+    """Check a session's codes; return its coders (sorted) and each row's coder position.
+
+    Refuses a coded second outside 0..duration_s - 1 and a second one coder codes
+    twice.
+    """
+    second = codes["second"].to_numpy()
+    outside = (second < 0) | (second >= duration_s)
+    if outside.any():
+        raise StageError(
+            f"coded second {int(second[outside][0])} lies outside the "
+            f"session (0..{duration_s - 1})", unit=key.label(), stage="agreement",
+            hint="media_log seconds must fall within the session's start and end")
+    # factorize the coder column once (cheap even for categorical or long logs) and
+    # name each coder by its text, as the tables do
+    code, uniques = pd.factorize(codes["coder"])
+    names = [str(u) for u in np.asarray(uniques, dtype=object)]
+    coders = sorted(set(names))
+    position = np.array([coders.index(n) for n in names], dtype=np.int64)[code]
+    # one slot per (coder, second): a slot filled twice is a second coded twice
+    slot = position * duration_s + second.astype(np.int64)
+    if len(slot) and np.bincount(slot).max() > 1:
+        raise StageError("a coder codes one second twice", unit=key.label(),
+                         stage="agreement", hint="ingest refuses duplicate rows; "
+                         "pass the validated media log")
+    return coders, position
+
+
+def _wide(second: np.ndarray, position: np.ndarray, values: np.ndarray, n_coders: int,
+          duration_s: int, missing: object = np.nan) -> np.ndarray:
+    """Seconds 0..duration-1 by coders array of one code column (``missing`` = not coded).
+
+    Filled by position (each row is one coder's code of one second, checked unique
+    by :func:`_coder_columns`) rather than by a pivot, which costs far more on
+    hours-long sessions. Text comes out as plain objects whatever dtype the log has.
+    """
+    table = np.full((duration_s, n_coders), missing, dtype=values.dtype)
+    table[second, position] = values
+    return table
+
+
+def _by_coder(table: np.ndarray, coders: list[str]) -> pd.DataFrame:
+    """A seconds x coders frame (index ``second``, columns ``coder``) of a wide array."""
+    return pd.DataFrame(table, index=pd.RangeIndex(len(table), name="second"),
+                        columns=pd.Index(coders, dtype=object, name="coder"))
+
+
+def coder_timeline(attended: pd.Series | np.ndarray, keep: np.ndarray) -> pd.DataFrame:
+    """A per-second timeline of one coder, with the columns the run's bout and switch
+    functions read (second, coded, attended, signal_valid).
+
+    ``attended`` holds seconds 0..n-1 in order (NA where this coder did not code the
+    second); ``keep`` marks the seconds to treat as coded (those both coders of a
+    pair coded). Signal validity plays no part in coder agreement, so
+    ``signal_valid`` is True throughout. ``attended`` is a plain object column (None
+    where not coded), which the bout functions read as it is.
+    """
+    attended = np.asarray(attended, dtype=object)
+    coded = keep & pd.notna(attended)
     return pd.DataFrame({
         "second": np.arange(len(attended), dtype=np.int64),
         "coded": coded,
-        "in_view": pd.array(np.where(coded, in_view.to_numpy(dtype=object), None),
-                            dtype="string"),
-        "attended": pd.array(np.where(coded, attended.to_numpy(dtype=object), None),
-                             dtype="string"),
+        "attended": np.where(coded, attended, None),
         "signal_valid": np.ones(len(attended), dtype=bool),
     })
 
@@ -133,8 +191,8 @@ def _tidy_table(table: np.ndarray, cats: list[str], a_name: str, b_name: str) ->
                          "seconds": table.reshape(-1).astype(np.int64)})
 
 
-def compare_pair(key: SessionKey, coder_a: str, coder_b: str, in_view: pd.DataFrame,
-                 attended: pd.DataFrame, cfg: AgreementSettings, switching: SwitchSettings,
+def compare_pair(key: SessionKey, coder_a: str, coder_b: str, a: CoderCodes, b: CoderCodes,
+                 cfg: AgreementSettings, switching: SwitchSettings,
                  dwell: DwellSettings) -> PairAgreement:
     """Agreement of two coders of one session.
 
@@ -144,26 +202,26 @@ def compare_pair(key: SessionKey, coder_a: str, coder_b: str, in_view: pd.DataFr
         The session.
     coder_a, coder_b
         The two coders; A is the reference of the switch precision and recall.
-    in_view, attended
-        Seconds 0..n-1 by coder tables of the codes ('' for none, NA where the coder
-        did not code the second).
+    a, b
+        Their codes by second (see :class:`CoderCodes`).
     cfg, switching, dwell
         ``[agreement]`` (tolerance, matching rule) and the run's ``[switching]`` and
         ``[dwell]`` settings, so that switches are the run's switches.
     """
-    a_att, b_att = attended[coder_a], attended[coder_b]
-    both = (a_att.notna() & b_att.notna()).to_numpy()
+    both = a.coded & b.coded
     n_both = int(both.sum())
 
-    lab_a = a_att[both].replace("", NONE).to_numpy(dtype=object)
-    lab_b = b_att[both].replace("", NONE).to_numpy(dtype=object)
-    t_att, cats = contingency_table(lab_a, lab_b)
-    st_a = classify_states(in_view[coder_a][both].astype("string"))["state"].to_numpy(object)
-    st_b = classify_states(in_view[coder_b][both].astype("string"))["state"].to_numpy(object)
-    t_state, st_cats = contingency_table(st_a, st_b, categories=["none", "single", "multi"])
+    # Tables over the labels either coder used in these seconds, in sorted order: the
+    # session's label names are sorted, so their positions keep that order.
+    names = a.label_names
+    t_all = contingency_table_of_codes(a.label[both], b.label[both], len(names))
+    seen = np.flatnonzero(t_all.sum(axis=0) + t_all.sum(axis=1))
+    t_att, cats = t_all[np.ix_(seen, seen)], [names[i] for i in seen]
+    t_state, st_cats = contingency_table_of_codes(a.state[both], b.state[both],
+                                                  len(STATES)), list(STATES)
 
-    tl_a = coder_timeline(in_view[coder_a], a_att, both)
-    tl_b = coder_timeline(in_view[coder_b], b_att, both)
+    tl_a = coder_timeline(a.attended, both)
+    tl_b = coder_timeline(b.attended, both)
     sw = compare_switches(coder_switches(tl_a, switching, dwell),
                           coder_switches(tl_b, switching, dwell),
                           cfg.switch_tolerance_s, cfg.switch_matching)
@@ -173,7 +231,7 @@ def compare_pair(key: SessionKey, coder_a: str, coder_b: str, in_view: pd.DataFr
     row = {
         "participant_id": key.participant_id, "session_id": key.session_id,
         "coder_a": coder_a, "coder_b": coder_b,
-        "seconds_a": int(a_att.notna().sum()), "seconds_b": int(b_att.notna().sum()),
+        "seconds_a": int(a.coded.sum()), "seconds_b": int(b.coded.sum()),
         "seconds_compared": n_both,
         "agreement_attended": observed_agreement(t_att),
         "kappa_attended": k_att, "kappa_attended_band": landis_koch_band(k_att),
@@ -197,19 +255,6 @@ def compare_pair(key: SessionKey, coder_a: str, coder_b: str, in_view: pd.DataFr
     }, columns=list(MATCH_COLUMNS))
     return PairAgreement(row=row, confusion=confusion[list(CONFUSION_COLUMNS)],
                          state_table=state_table, matches=matches)
-
-
-def _check_codes(key: SessionKey, codes: pd.DataFrame, duration_s: int) -> None:
-    outside = (codes["second"] < 0) | (codes["second"] >= duration_s)
-    if outside.any():
-        raise StageError(
-            f"coded second {int(codes.loc[outside, 'second'].iloc[0])} lies outside the "
-            f"session (0..{duration_s - 1})", unit=key.label(), stage="agreement",
-            hint="media_log seconds must fall within the session's start and end")
-    if codes.duplicated(["second", "coder"]).any():
-        raise StageError("a coder codes one second twice", unit=key.label(),
-                         stage="agreement", hint="ingest refuses duplicate rows; "
-                         "pass the validated media log")
 
 
 def session_agreement(key: SessionKey, codes: pd.DataFrame, duration_s: int,
@@ -236,24 +281,38 @@ def session_agreement(key: SessionKey, codes: pd.DataFrame, duration_s: int,
         every second coded by at least two of them. A session with one coder gives
         no pairs.
     """
-    _check_codes(key, codes, duration_s)
-    coders = sorted(codes["coder"].astype(str).unique().tolist())
+    coders, position = _coder_columns(key, codes, duration_s)
     result = SessionAgreement(key=key, coders=coders)
-    if len(coders) < 2:
+    if len(coders) < 2:  # most sessions: nothing to compare, and nothing more to pay
         return result
-    codes = codes.assign(coder=codes["coder"].astype(str))
-    attended = _wide(codes, "attended", coders, duration_s)
-    in_view = _wide(codes, "in_view", coders, duration_s)
-    for coder_a, coder_b in combinations(coders, 2):
-        result.pairs.append(compare_pair(key, coder_a, coder_b, in_view, attended,
+    second = codes["second"].to_numpy(dtype=np.int64)
+    k = len(coders)
+    # Attended labels: each distinct value once ('' -> 'none'), in sorted order, and
+    # each row's label as its position in that order (-1 for a missing code).
+    raw_code, raw = pd.factorize(codes["attended"])
+    label_names, label_of_raw = np.unique(
+        np.array([NONE if v == "" else v for v in np.asarray(raw, dtype=object)], dtype=object),
+        return_inverse=True)
+    label_names = label_names.tolist()
+    label = _wide(second, position, np.append(label_of_raw, -1)[raw_code], k, duration_s,
+                  missing=-1)
+    # a state depends on one second's codes only: classify the log's rows once
+    state = _wide(second, position, state_codes(codes["in_view"]), k, duration_s, missing=-1)
+    attended = _wide(second, position, codes["attended"].to_numpy(dtype=object), k, duration_s)
+    coded = label >= 0
+    per_coder = [CoderCodes(attended=attended[:, j], label=label[:, j], label_names=label_names,
+                            state=state[:, j], coded=coded[:, j]) for j in range(k)]
+    for (i, coder_a), (j, coder_b) in combinations(enumerate(coders), 2):
+        result.pairs.append(compare_pair(key, coder_a, coder_b, per_coder[i], per_coder[j],
                                          cfg, switching, dwell))
 
-    att_labels = attended.where(attended != "", NONE)
-    state_labels = in_view.apply(lambda col: classify_states(col.astype("string"))["state"])
-    state_labels = state_labels.astype(object).where(state_labels.notna(), None)
-    result.labels, result.state_labels = att_labels, state_labels
+    # the pooled alpha reads the labels as text: NaN / None where a coder did not code
+    result.labels = _by_coder(np.array(label_names + [np.nan], dtype=object)[label], coders)
+    result.state_labels = _by_coder(np.array(list(STATES) + [None], dtype=object)[state],
+                                    coders)
+    att_labels, state_labels = result.labels, result.state_labels
     if len(coders) >= 3:
-        n_coded = attended.notna().sum(axis=1)
+        n_coded = coded.sum(axis=1)
         result.alpha = {
             "participant_id": key.participant_id, "session_id": key.session_id,
             "n_coders": len(coders), "coders": ";".join(coders),

@@ -70,6 +70,22 @@ def test_alpha_matches_krippendorff_package_with_missing_values(seed):
     assert alpha(_as_units_by_coders(data)) == pytest.approx(ref, abs=1e-10)
 
 
+def test_value_counts_by_unit_count_like_a_loop_over_cells():
+    rng = np.random.default_rng(7)
+    labels = np.array(["tv", "phone", "none", None, np.nan], dtype=object)
+    codes = pd.DataFrame(labels[rng.integers(0, 5, (200, 3))], index=rng.permutation(200) + 3)
+    counts, cats = value_counts_by_unit(codes)
+    assert cats == ["none", "phone", "tv"]
+    expected = np.zeros((200, 3), dtype=np.int64)
+    for u, row in enumerate(codes.itertuples(index=False)):
+        for v in row:
+            if not pd.isna(v):
+                expected[u, cats.index(v)] += 1
+    np.testing.assert_array_equal(counts, expected)
+    with pytest.raises(ValueError):
+        value_counts_by_unit(codes, categories=["tv", "phone"])
+
+
 def test_alpha_is_one_for_perfect_agreement_and_undefined_for_one_value():
     perfect = pd.DataFrame({"a": ["tv", "phone", "none"], "b": ["tv", "phone", "none"],
                             "c": ["tv", "phone", None]})

@@ -12,6 +12,7 @@ from pipeline.agreement.kappa import (
     chance_agreement,
     cohen_kappa,
     contingency_table,
+    contingency_table_of_codes,
     kappa,
     landis_koch_band,
     landis_koch_bands,
@@ -63,6 +64,33 @@ def test_kappa_matches_sklearn_on_random_labels(seed):
     table, _ = contingency_table(a, b)
     assert cohen_kappa(table) == pytest.approx(cohen_kappa_score(a, b), abs=1e-12)
     assert observed_agreement(table) == pytest.approx(np.mean(a == b))
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_contingency_table_counts_like_a_loop_over_units(seed):
+    rng = np.random.default_rng(seed)
+    cats = ["laptop", "none", "phone", "tv"]
+    a = rng.choice(cats, size=300)
+    b = rng.choice(cats[1:], size=300)  # B never says laptop: still a row and column
+    table, got = contingency_table(a, b)
+    expected = np.zeros((4, 4), dtype=np.int64)
+    for x, y in zip(a, b):
+        expected[cats.index(x), cats.index(y)] += 1
+    assert got == cats
+    np.testing.assert_array_equal(table, expected)
+    # the same from category positions, as the agreement stage passes them
+    ia = np.array([cats.index(x) for x in a])
+    ib = np.array([cats.index(y) for y in b])
+    np.testing.assert_array_equal(contingency_table_of_codes(ia, ib, 4), expected)
+
+
+def test_missing_labels_and_labels_outside_the_categories_are_refused():
+    with pytest.raises(ValueError, match="missing"):
+        contingency_table(["tv", None], ["tv", "tv"])
+    with pytest.raises(ValueError, match="category list"):
+        contingency_table(["tv", "radio"], ["tv", "tv"], categories=["tv"])
+    with pytest.raises(ValueError, match="category list"):
+        contingency_table_of_codes(np.array([0, -1]), np.array([0, 0]), 2)
 
 
 def test_kappa_of_identical_constant_codes_is_undefined():

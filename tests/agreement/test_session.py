@@ -176,3 +176,56 @@ def test_study_tables_pool_sessions():
     data = np.array([[num[c] for c in A_ATTENDED * 2], [num[c] for c in B_ATTENDED * 2]])
     ref = krippendorff.alpha(reliability_data=data, level_of_measurement="nominal")
     assert study["alpha_attended"] == pytest.approx(ref, abs=1e-12)
+
+
+def _same_agreement(x: SessionAgreement, y: SessionAgreement) -> None:
+    assert x.coders == y.coders and x.alpha == y.alpha
+    pd.testing.assert_frame_equal(x.labels, y.labels)
+    pd.testing.assert_frame_equal(x.state_labels, y.state_labels)
+    assert len(x.pairs) == len(y.pairs)
+    for p, q in zip(x.pairs, y.pairs):
+        assert p.row == q.row
+        for name in ("confusion", "state_table", "matches"):
+            pd.testing.assert_frame_equal(getattr(p, name), getattr(q, name))
+
+
+def _three_coders() -> pd.DataFrame:
+    c_att = "ppptt" + A_ATTENDED[5:14] + "??????"
+    c_view = A_IN_VIEW[:14] + "??????"
+    return pd.concat([two_coders(), rows("cy", c_att, c_view)], ignore_index=True)
+
+
+def test_row_order_and_categorical_columns_do_not_change_the_result():
+    codes = _three_coders()
+    ref = run(codes)
+    shuffled = codes.sample(frac=1.0, random_state=3).reset_index(drop=True)
+    _same_agreement(run(shuffled), ref)
+    as_category = codes.astype({"in_view": "category", "attended": "category",
+                                "coder": "category", "second": "int32"})
+    _same_agreement(run(as_category), ref)
+
+
+def test_labels_are_the_codes_laid_out_by_second_and_coder():
+    # reference: a plain pivot of the log, '' read as 'none', states by hand
+    codes = _three_coders()
+    res = run(codes)
+    wide = codes.pivot(index="second", columns="coder", values="attended").reindex(range(20))
+    expected = wide.where(wide != "", "none")
+    pd.testing.assert_frame_equal(res.labels, expected, check_names=False)
+    assert res.labels.index.name == "second" and res.labels.columns.name == "coder"
+    view = codes.pivot(index="second", columns="coder", values="in_view").reindex(range(20))
+    state = {"": "none", "tv": "single", "phone": "single", "phone;tv": "multi"}
+    for coder in res.coders:
+        got = res.state_labels[coder].tolist()
+        assert got == [None if pd.isna(v) else state[v] for v in view[coder]]
+
+
+def test_a_second_coded_twice_is_refused_even_with_one_coder():
+    one = rows("ann", A_ATTENDED, A_IN_VIEW)
+    twice = pd.concat([one, one.iloc[[3]]], ignore_index=True)
+    with pytest.raises(StageError, match="twice"):
+        run(twice)
+    late = one.copy()
+    late.loc[0, "second"] = 20
+    with pytest.raises(StageError, match="outside"):
+        run(late)

@@ -53,6 +53,39 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+#: glibc malloc settings for processes that run per-session work (mallopt parameter
+#: numbers from <malloc.h>): M_MMAP_THRESHOLD, M_TRIM_THRESHOLD.
+_M_TRIM_THRESHOLD, _M_MMAP_THRESHOLD = -1, -3
+MMAP_THRESHOLD_BYTES = 256 << 20
+TRIM_THRESHOLD_BYTES = 1 << 30
+
+
+def keep_freed_memory() -> None:
+    """Let this process reuse the memory it frees instead of returning it to the OS.
+
+    By default glibc maps every array above a few MB afresh and unmaps it when freed,
+    so each session's many multi-MB arrays cost thousands of page faults (measured:
+    about 11,700 per 4-hour session, a fifth of its signal-processing time). Raising
+    the mmap and trim thresholds keeps freed blocks in the heap for the next array.
+    The process then stays at its peak (one session's working set) rather than
+    shrinking between sessions. A no-op where the C library is not glibc.
+    """
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL("libc.so.6")
+        libc.mallopt(_M_MMAP_THRESHOLD, MMAP_THRESHOLD_BYTES)
+        libc.mallopt(_M_TRIM_THRESHOLD, TRIM_THRESHOLD_BYTES)
+    except (OSError, AttributeError):  # not glibc
+        pass
+
+
+def _start_worker() -> None:
+    """Set-up of each local worker process."""
+    keep_freed_memory()
+    _limit_threads()
+
+
 def _limit_threads() -> None:
     """Worker start-up: one thread per worker process.
 
@@ -98,7 +131,7 @@ class TaskPool:
     def start(self) -> "TaskPool":
         if not self.cluster and self.workers > 1 and self._pool is None:
             self._pool = ProcessPoolExecutor(max_workers=self.workers,
-                                             initializer=_limit_threads)
+                                             initializer=_start_worker)
             # start every worker now (the pool forks lazily otherwise)
             for fut in [self._pool.submit(_ready) for _ in range(self.workers)]:
                 fut.result()

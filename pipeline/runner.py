@@ -32,7 +32,7 @@ from pipeline.align.clock import ClockMap
 from pipeline.align.timeline import build_timeline
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
-from pipeline.execution import Outcome, TaskPool
+from pipeline.execution import Outcome, TaskPool, keep_freed_memory
 from pipeline.ingest import load_study
 from pipeline.ingest import read_recording_checked
 from pipeline.metrics.arousal import add_arousal, arousal_source
@@ -431,6 +431,7 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
          ) -> RunResult:
     timings: dict[str, float] = {}
     _arrow_threads(pool.workers if pool.local_files else 1)
+    keep_freed_memory()  # serial runs do the per-session work in this process
     study = load_study(folder, cfg)
     timings["ingest_s"] = time.perf_counter() - started
     outdir = OutputFolder(Path(out))

@@ -72,9 +72,12 @@ class Study:
     * ``roster``: participant_id, cohort, covariate columns...
     * ``sessions``: participant_id, session_id, start, end (tz-aware UTC Timestamps),
       duration_s (int)
-    * ``media_log``: participant_id, session_id, second (int), in_view (str, sorted
-      codes ';'-joined, '' for none), attended (str, '' for none), coder (str, '' if
-      the log has no coder column). All coders' rows are kept here.
+    * ``media_log``: participant_id, session_id, second (int32), in_view (sorted codes
+      ';'-joined, '' for none), attended ('' for none), coder ('' if the log has no
+      coder column). All coders' rows are kept here, sorted by participant, session,
+      coder and second. The text columns are pandas categoricals of those strings
+      (a log holds millions of seconds but few distinct values); group them with
+      ``observed=True`` and convert a slice with ``.astype(object)`` for plain strings.
     * ``sync``: participant_id, session_id, video_s, sensor_s (float)
     * ``survey``: participant_id, item, value, or None
     * ``recordings``: SessionKey -> path of that session's signal file
@@ -99,9 +102,10 @@ class Study:
                 self.sessions[["participant_id", "session_id"]].itertuples(index=False)]
 
     def coders(self, key: SessionKey) -> list[str]:
+        """The coders of one session, sorted ('' for a log without coder column)."""
         m = self.media_log
-        sel = m[(m.participant_id == key.participant_id) & (m.session_id == key.session_id)]
-        return sorted(sel["coder"].unique().tolist())
+        rows = (m["participant_id"] == key.participant_id) & (m["session_id"] == key.session_id)
+        return sorted(str(c) for c in m.loc[rows, "coder"].unique())
 
 
 @dataclass

@@ -129,7 +129,7 @@ def study_agreement(study: Study, cfg: Config) -> list[SessionAgreement]:
     ``cfg.switching`` and ``cfg.dwell``.
     """
     log = study.media_log
-    clash = log["attended"].astype(str) == NONE
+    clash = log["attended"] == NONE
     if clash.any():
         raise InputError(
             "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
@@ -138,9 +138,13 @@ def study_agreement(study: Study, cfg: Config) -> list[SessionAgreement]:
             "for nothing attended")
     durations = study.sessions.set_index(["participant_id", "session_id"])["duration_s"]
     results: list[SessionAgreement] = []
-    for (pid, sid), codes in log.groupby(["participant_id", "session_id"], sort=True):
+    # observed=True: the log's ID columns may be categorical (only the pairs present wanted)
+    for (pid, sid), codes in log.groupby(["participant_id", "session_id"], sort=True,
+                                         observed=True):
         key = SessionKey(str(pid), str(sid))
+        # the agreement code sees plain strings and int64 seconds whatever dtypes ingest chose
+        codes = codes[["second", "in_view", "attended", "coder"]].astype(
+            {"second": np.int64, "in_view": object, "attended": object, "coder": object})
         results.append(session_agreement(
-            key, codes[["second", "in_view", "attended", "coder"]], int(durations[(pid, sid)]),
-            cfg.agreement, cfg.switching, cfg.dwell))
+            key, codes, int(durations[(pid, sid)]), cfg.agreement, cfg.switching, cfg.dwell))
     return results

@@ -39,7 +39,8 @@ def summary_lines(study: Study, cfg: Config, config_file: Path | None,
     roster, sessions, log = study.roster, study.sessions, study.media_log
     cohorts = roster["cohort"].value_counts().sort_index()
     keys = ["participant_id", "session_id"]
-    coded = log[keys + ["second"]].drop_duplicates().groupby(keys).size()
+    # observed=True: the log's ID columns are categorical (only the pairs present wanted)
+    coded = log[keys + ["second"]].drop_duplicates().groupby(keys, observed=True).size()
     total_s = int(sessions["duration_s"].sum())
     coded_s = int(coded.sum())
     lines = [

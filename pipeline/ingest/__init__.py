@@ -136,7 +136,7 @@ def load_study(folder: Path, cfg: Config) -> Study:
         platform_groups = declared
 
     primary = cfg.coding.primary_coder
-    coders = sorted(set(media_log["coder"]))
+    coders = sorted(media_log["coder"].unique())
     if primary is not None and primary not in coders:
         close = difflib.get_close_matches(primary, coders, n=1)
         warnings.append(f"[coding] primary_coder = {primary!r} codes no session"

@@ -21,25 +21,49 @@ from pipeline.ingest.csvfile import CsvTable
 MAX_INTEGER = 2**53
 
 
+def distinct(text: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """(code of each row, the distinct values), so that ``values[codes]`` is ``text``.
+
+    A categorical column (how big tables are read) already is this: its own compact
+    codes and categories are used, which costs nothing. Other columns are factorized.
+    """
+    if isinstance(text.dtype, pd.CategoricalDtype):
+        return text.cat.codes.to_numpy(), np.asarray(text.cat.categories, dtype=object)
+    codes, uniques = pd.factorize(text)
+    return codes, np.asarray(uniques, dtype=object)
+
+
 def by_unique(text: pd.Series, fn: Callable[[pd.Series], Any]) -> np.ndarray:
     """Apply ``fn`` (vectorised, on a Series of the distinct values) and map back to rows.
 
     Study columns repeat few values (IDs, codes) or short ranges (seconds); working on
     the distinct values keeps per-string work small on logs of millions of rows.
     """
-    codes, uniques = pd.factorize(text)
-    result = np.asarray(fn(pd.Series(np.asarray(uniques, dtype=object), dtype=object)))
+    codes, uniques = distinct(text)
+    result = np.asarray(fn(pd.Series(uniques, dtype=object)))
     if len(result) == 0:
         return np.zeros(len(text), dtype=result.dtype)
     return result[codes]
 
 
 def pair_codes(a: pd.Series, b: pd.Series) -> tuple[np.ndarray, list[tuple[Any, Any]]]:
-    """Code each row's (a, b) pair: (index of the pair per row, the distinct pairs)."""
-    ca, ua = pd.factorize(a)
-    cb, ub = pd.factorize(b)
+    """Code each row's (a, b) pair: (index of the pair per row, the distinct pairs).
+
+    The pairs are in no particular order.
+    """
+    ca, ua = distinct(a)
+    cb, ub = distinct(b)
     nb = max(len(ub), 1)
-    inverse, combos = pd.factorize(ca.astype(np.int64) * nb + cb)
+    n_keys = max(len(ua), 1) * nb
+    key = ca.astype(np.int32 if n_keys < 2**31 else np.int64)  # pair k = code_a * nb + code_b
+    key *= nb
+    key += cb
+    if n_keys <= max(2**20, len(key)):  # few possible pairs: count them, no hashing needed
+        held = np.bincount(key, minlength=n_keys) > 0
+        combos = np.flatnonzero(held)
+        inverse = (np.cumsum(held) - 1).astype(np.int32)[key]
+    else:
+        inverse, combos = pd.factorize(key)
     return inverse, [(ua[k // nb], ub[k % nb]) for k in combos]
 
 
@@ -66,18 +90,19 @@ def non_negative_integers(table: CsvTable, column: str, problems: ProblemCollect
 
     Returns (values as int64 with 0 where bad, mask of good rows).
     """
-    text = table.frame[column]
-    numbers = by_unique(text, lambda u: pd.to_numeric(
-        u.where(u.str.fullmatch(r"[+]?[0-9]+(\.0*)?"), None), errors="coerce"
-    ).to_numpy(dtype=float))
-    good = np.isfinite(numbers) & (numbers >= 0) & (numbers < MAX_INTEGER)
-    empty = (text == "").to_numpy()
+    # each distinct text is parsed once; rows take their value by code
+    codes, uniques = distinct(table.frame[column])
+    text = pd.Series(uniques, dtype=object)
+    numbers = pd.to_numeric(text.where(text.str.fullmatch(r"[+]?[0-9]+(\.0*)?"), None),
+                            errors="coerce").to_numpy(dtype=float)
+    good_value = np.isfinite(numbers) & (numbers >= 0) & (numbers < MAX_INTEGER)
+    good, empty = good_value[codes], (uniques == "")[codes]
     report(table, column, empty, problems, f"is empty: {what} is required",
            hint="a whole number of seconds, 0 or more")
     report(table, column, ~good & ~empty, problems,
            f"is not a whole number of seconds, 0 or more ({what})",
            hint="write whole seconds such as 0, 1, 2 (no decimals, signs or units)")
-    values = np.where(good, numbers, 0).astype(np.int64)
+    values = np.where(good_value, numbers, 0).astype(np.int64)[codes]
     return values, good
 
 

@@ -10,7 +10,18 @@ Every table of a study folder goes through :func:`read_table`, which
   a tab, as spreadsheet programs in many locales write;
 * strips spaces around column names and values, and drops blank lines;
 * keeps every value as text, so each cell's type is checked later with its line
-  number (the header is line 1; quoted values spanning lines are counted right).
+  number (the header is line 1; quoted values spanning lines are counted right);
+* hands big tables over as categorical columns on request (``categorical=True``): a
+  media log of millions of rows repeats a few IDs and codes, so each distinct value is
+  stored, stripped and checked once.
+
+Files are parsed by Arrow's CSV reader (fast, and it keeps each column's distinct
+values once). Arrow is stricter or more lenient than the careful reader in a few
+corners (blank lines, rows with too few values, quoted line breaks, a quote left open
+at the very end, other encodings); a file that meets one of them is read again by
+pandas' reader, which gives the line numbers and messages in every case. Both readers
+give the same table for every file they both accept (tests/ingest/test_csvfile.py
+checks this on many awkward files).
 
 Problems of the file as a whole (empty, header only, a required column missing, a
 duplicated column name) are raised together as one :class:`InputError`.
@@ -18,6 +29,7 @@ duplicated column name) are raised together as one :class:`InputError`.
 
 from __future__ import annotations
 
+import codecs
 import csv
 import difflib
 import io
@@ -27,6 +39,8 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.csv as pa_csv
 
 from pipeline.errors import InputError, ProblemCollector
 
@@ -48,7 +62,8 @@ class CsvTable:
     """One CSV file's rows as text.
 
     ``frame`` has one column per header name (stripped), every value a ``str``
-    ('' for empty); ``lines`` gives the line number of each row in the file as a text
+    ('' for empty), held as ``object`` columns or, when read with ``categorical=True``,
+    as pandas categoricals of the same strings; ``lines`` gives the line number of each row in the file as a text
     editor shows it; ``label`` is how messages name the file (relative to the study).
     """
 
@@ -67,13 +82,8 @@ class CsvTable:
         return list(self.frame.columns)
 
 
-def _decode(data: bytes, label: str) -> str:
-    if data.startswith(UTF16_BOMS):
-        try:
-            return data.decode("utf-16")
-        except UnicodeDecodeError:
-            raise InputError(label, "starts with a UTF-16 byte-order mark but is not valid "
-                             "UTF-16 text", hint="save the file as CSV UTF-8") from None
+def _refuse_binary(data: bytes, label: str) -> None:
+    """Refuse Parquet, workbooks, archives and other bytes that are not text."""
     for signature, what in BINARY_SIGNATURES.items():
         if data.startswith(signature):
             raise InputError(label, f"is not a text CSV file: it looks like {what}",
@@ -83,6 +93,16 @@ def _decode(data: bytes, label: str) -> str:
         raise InputError(label, "is not a text CSV file: it holds binary data (NUL bytes)",
                          line=line,
                          hint="export the table as CSV (comma-separated, UTF-8)")
+
+
+def _decode(data: bytes, label: str) -> str:
+    if data.startswith(UTF16_BOMS):
+        try:
+            return data.decode("utf-16")
+        except UnicodeDecodeError:
+            raise InputError(label, "starts with a UTF-16 byte-order mark but is not valid "
+                             "UTF-16 text", hint="save the file as CSV UTF-8") from None
+    _refuse_binary(data, label)
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as err:
@@ -117,14 +137,40 @@ def _separator(header_line: str) -> str:
     return ","
 
 
-def _physical_lines(text: str) -> int:
-    crlf = text.count("\r\n")
-    n = text.count("\n") + text.count("\r") - crlf
-    if text and not text.endswith(("\n", "\r")):
+def _physical_lines(text: str | bytes) -> int:
+    """Lines as a text editor counts them (``\n``, ``\r\n`` or a lone ``\r`` end one)."""
+    nl, cr = ("\n", "\r") if isinstance(text, str) else (b"\n", b"\r")
+    n_cr = text.count(cr)
+    n = text.count(nl) + n_cr - (text.count(cr + nl) if n_cr else 0)
+    if text and not text.endswith((nl, cr)):
         n += 1
     return n
 
 
+@dataclass
+class _Records:
+    """Every record of a file (header and blank lines included), column by column.
+
+    The values of column ``i`` are ``values[i][codes[i]]``: each distinct value is held
+    once, already stripped; ``lines`` is the line on which each record starts.
+    """
+
+    codes: list[np.ndarray]
+    values: list[np.ndarray]  # object arrays of distinct str
+    lines: np.ndarray
+    separator: str
+
+
+def _stripped(codes: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Strip spaces around each distinct value; values equal once stripped are merged."""
+    stripped = np.asarray([v.strip() for v in values], dtype=object)
+    if len(stripped) == 0 or (stripped == values).all():
+        return codes, values
+    remap, distinct = pd.factorize(stripped)
+    return remap.astype(np.int32)[codes], np.asarray(distinct, dtype=object)
+
+
+# ------------------------------------------------------------------ careful reader
 def _record_start_lines(text: str, sep: str, n_records: int) -> np.ndarray:
     """1-based line on which each parsed record starts."""
     if _physical_lines(text) == n_records:
@@ -144,11 +190,15 @@ def _record_start_lines(text: str, sep: str, n_records: int) -> np.ndarray:
     return np.arange(1, n_records + 1)
 
 
+def _pandas_csv(text: str, sep: str) -> pd.DataFrame:
+    """Every record of ``text`` as text, blank lines included (pandas' C reader)."""
+    return pd.read_csv(io.StringIO(text), sep=sep, header=None, dtype=str, na_filter=False,
+                       skip_blank_lines=False, engine="c", quotechar='"', doublequote=True)
+
+
 def _parse(text: str, sep: str, label: str) -> pd.DataFrame:
     try:
-        return pd.read_csv(io.StringIO(text), sep=sep, header=None, dtype=str,
-                           na_filter=False, skip_blank_lines=False, engine="c",
-                           quotechar='"', doublequote=True)
+        return _pandas_csv(text, sep)
     except pd.errors.EmptyDataError:
         raise InputError(label, "is empty", line=1,
                          hint="the first line must name the columns") from None
@@ -169,20 +219,171 @@ def _parse(text: str, sep: str, label: str) -> pd.DataFrame:
         raise InputError(label, problem, line=line, hint=hint) from None
 
 
-def _strip(col: pd.Series) -> pd.Series:
-    """Strip spaces around each value, once per distinct value."""
-    codes, uniques = pd.factorize(col)
-    stripped = np.asarray(pd.Index(uniques, dtype=object).str.strip(), dtype=object)
-    return pd.Series(stripped[codes] if len(stripped) else col.to_numpy(), index=col.index,
-                     dtype=object)
+def _careful_records(data: bytes, label: str, required: list[str]) -> _Records:
+    """Read any file pandas' reader takes, with exact line numbers and messages."""
+    text = _decode(data, label)
+    if not text.strip():
+        raise InputError(label, "is empty", line=1,
+                         hint=f"the first line must name the columns: {', '.join(required)}")
+    sep = _separator(_first_line(text))
+    raw = _parse(text, sep, label)
+    lines = _record_start_lines(text, sep, len(raw))
+    del text
+    codes, values = [], []
+    for i in raw.columns:
+        c, v = pd.factorize(raw[i])
+        c, v = _stripped(c.astype(np.int32), np.asarray(v, dtype=object))
+        codes.append(c)
+        values.append(v)
+    return _Records(codes, values, lines, sep)
 
 
+# -------------------------------------------------------------------- Arrow reader
+#: Arrow keeps each distinct value of a column once (a dictionary) while it parses.
+_TEXT = pa.dictionary(pa.int32(), pa.string())
+#: Arrow's memory for reading comes from malloc, like numpy's: what Arrow frees after a
+#: read is reused for the arrays built from it (Arrow's default pool keeps freed memory
+#: for itself, which only adds to the peak).
+_POOL = pa.system_memory_pool()
+#: Bytes decoded at a time to check that a non-ASCII file is UTF-8 (bounds the memory).
+_UTF8_CHUNK = 1 << 20
+
+
+def _is_utf8(data: bytes, start: int) -> bool:
+    """Whether ``data[start:]`` is UTF-8 as Python reads it (ASCII is checked in one pass)."""
+    view = memoryview(data)[start:]
+    if not len(view) or int(np.frombuffer(view, dtype=np.uint8).max()) < 0x80:
+        return True
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    try:
+        for i in range(0, len(view), _UTF8_CHUNK):
+            decoder.decode(view[i: i + _UTF8_CHUNK])
+        decoder.decode(b"", final=True)
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+def _last_line_agrees(data: bytes, start: int, sep: str, last: list[str]) -> bool:
+    """Whether pandas reads the file's last line as Arrow read its last record.
+
+    Arrow accepts a quote left open on the last line (the value runs to the end of the
+    file); the careful reader refuses it, and so must we.
+    """
+    end = len(data)
+    for ending in (b"\r\n", b"\n", b"\r"):
+        if data.endswith(ending):
+            end -= len(ending)
+            break
+    begin = max(data.rfind(b"\n", start, end), data.rfind(b"\r", start, end), start - 1) + 1
+    try:
+        row = _pandas_csv(data[begin:].decode("utf-8"), sep)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, OverflowError):
+        return False
+    return row.shape == (1, len(last)) and row.iloc[0].tolist() == last
+
+
+def _arrow_table(data: bytes, label: str) -> tuple[pa.Table, str] | None:
+    """Parse a plain CSV file with Arrow: (every record, the separator), or None.
+
+    Arrow's reader runs on the threads Arrow is allowed (``pyarrow.set_cpu_count``,
+    which the runner sets). None is returned for other encodings than UTF-8, blank
+    lines, quoted line breaks, rows of another length than the header and anything
+    Arrow refuses: the careful reader then reads the file and explains any problem.
+    """
+    if data.startswith(UTF16_BOMS):
+        return None
+    _refuse_binary(data, label)
+    start = len(UTF8_BOM) if data.startswith(UTF8_BOM) else 0
+    if data.startswith(UTF8_BOM, start) or not _is_utf8(data, start):
+        return None  # a second byte-order mark (Arrow would drop it too) or not UTF-8
+    ends = [i for i in (data.find(b"\n", start), data.find(b"\r", start)) if i >= 0]
+    header = data[start: min(ends) if ends else len(data)].decode("utf-8")
+    if not header.strip():
+        return None  # leading blank lines, or an empty file
+    sep = _separator(header)
+    try:
+        names = [f"f{i}" for i in range(len(next(csv.reader([header], delimiter=sep))))]
+    except csv.Error:
+        return None
+    quoted = data.find(b'"', start) >= 0
+    try:
+        table = pa_csv.read_csv(
+            pa.py_buffer(data)[start:], memory_pool=_POOL,
+            read_options=pa_csv.ReadOptions(column_names=names, use_threads=True),
+            parse_options=pa_csv.ParseOptions(delimiter=sep, quote_char='"', double_quote=True,
+                                              escape_char=False, newlines_in_values=quoted,
+                                              ignore_empty_lines=True),
+            convert_options=pa_csv.ConvertOptions(
+                column_types={name: _TEXT for name in names}, check_utf8=False,
+                null_values=[], strings_can_be_null=False, quoted_strings_can_be_null=False))
+    except pa.ArrowException:
+        return None
+    # Arrow skips blank lines and joins quoted line breaks: then records and lines differ
+    # and the careful reader counts the lines.
+    if table.num_rows != _physical_lines(data):
+        return None
+    if quoted and not _last_line_agrees(data, start, sep,
+                                        [column[-1].as_py() for column in table.columns]):
+        return None
+    return table, sep
+
+
+def _arrow_records(table: pa.Table, sep: str) -> _Records:
+    """The records of an Arrow table of dictionary columns, freeing it column by column."""
+    columns = table.columns
+    del table
+    codes, values = [], []
+    for i in range(len(columns)):
+        column = columns[i].unify_dictionaries(_POOL)  # one dictionary for every chunk
+        columns[i] = None  # done with: Arrow frees it
+        c = np.concatenate([chunk.indices.to_numpy() for chunk in column.chunks])
+        v = column.chunks[0].dictionary.to_numpy(zero_copy_only=False).astype(object)
+        del column
+        c, v = _stripped(c, v)
+        codes.append(c)
+        values.append(v)
+    return _Records(codes, values, np.arange(1, len(codes[0]) + 1), sep)
+
+
+# ------------------------------------------------------------------------ the table
 def _sep_name(sep: str) -> str:
     return {",": "comma", ";": "semicolon", "\t": "tab"}.get(sep, repr(sep))
 
 
+def _read_records(path: Path, label: str, required: list[str]) -> _Records:
+    try:
+        data = path.read_bytes()
+    except OSError as err:
+        raise InputError(label, f"cannot be read ({err.strerror or err})") from None
+    parsed = _arrow_table(data, label)
+    if parsed is None:
+        return _careful_records(data, label, required)
+    del data  # the table holds the values: the file's bytes can go
+    return _arrow_records(*parsed)
+
+
+def present_only(codes: np.ndarray, values: np.ndarray) -> pd.Categorical:
+    """The categorical of ``values[codes]`` whose categories are the values present.
+
+    (Counting codes is much cheaper than pandas' ``remove_unused_categories``, which
+    sorts them.)
+    """
+    used = np.bincount(codes, minlength=len(values)) > 0
+    if not used.all():
+        codes = (np.cumsum(used) - 1).astype(np.int32)[codes]
+        values = values[used]
+    return pd.Categorical.from_codes(codes, pd.Index(values, dtype=object))
+
+
+def _column(codes: np.ndarray, values: np.ndarray, categorical: bool):
+    if categorical:
+        return present_only(codes, values)
+    return values[codes] if len(values) else np.zeros(len(codes), dtype=object)
+
+
 def read_table(path: Path, label: str, required: list[str], *,
-               allow_no_rows: bool = False) -> CsvTable:
+               allow_no_rows: bool = False, categorical: bool = False) -> CsvTable:
     """Read ``path`` as a CSV table of text values.
 
     Parameters
@@ -195,6 +396,9 @@ def read_table(path: Path, label: str, required: list[str], *,
         Columns that must be present (more are kept).
     allow_no_rows
         Accept a file with a header and no data rows (optional tables).
+    categorical
+        Give the frame's columns as pandas categoricals (the same strings, each
+        distinct value held once) instead of ``object`` columns: for big tables.
 
     Raises
     ------
@@ -202,40 +406,35 @@ def read_table(path: Path, label: str, required: list[str], *,
         Empty, binary, not UTF-8, malformed, header only (unless allowed), duplicated
         or missing columns; all problems of the header together.
     """
-    try:
-        data = path.read_bytes()
-    except OSError as err:
-        raise InputError(label, f"cannot be read ({err.strerror or err})") from None
-    text = _decode(data, label)
-    if not text.strip():
+    records = _read_records(path, label, required)
+    codes, values, sep = records.codes, records.values, records.separator
+    n = len(records.lines)
+    # Records whose values are all empty are blank lines (or only separators): dropped.
+    blank = np.ones(n, dtype=bool)
+    for c, v in zip(codes, values):
+        empty = np.flatnonzero(v == "")
+        if not len(empty):
+            blank[:] = False
+            break
+        blank &= c == empty[0]
+    kept = np.flatnonzero(~blank)
+    if not len(kept):  # only blank lines and spaces
         raise InputError(label, "is empty", line=1,
                          hint=f"the first line must name the columns: {', '.join(required)}")
-    sep = _separator(_first_line(text))
-    raw = _parse(text, sep, label)
-    starts = _record_start_lines(text, sep, len(raw))
-    raw = raw.apply(_strip)
-    blank = (raw[0] == "").to_numpy()
-    if blank.any():  # rows whose first value is empty: blank only when all values are
-        blank[blank] = (raw[blank] == "").all(axis=1).to_numpy()
-    raw, starts = raw[~blank], starts[~blank]
-    if raw.empty:  # only blank lines and spaces
-        raise InputError(label, "is empty", line=1,
-                         hint=f"the first line must name the columns: {', '.join(required)}")
-    header_line = int(starts[0])
-    names = [str(v).strip().lstrip("\ufeff").strip() for v in raw.iloc[0].tolist()]
-    body = raw.iloc[1:].reset_index(drop=True)
-    lines = starts[1:]
-    body.columns = range(len(names))
+    header_line = int(records.lines[kept[0]])
+    names = [str(v[c[kept[0]]]).strip().lstrip("\ufeff").strip() for c, v in zip(codes, values)]
+    body = slice(1, None) if len(kept) == n else kept[1:]  # a slice avoids copying codes
+    lines = records.lines[body]
 
     problems = ProblemCollector()
     keep: list[int] = []
     seen: dict[str, int] = {}
     for i, name in enumerate(names):
         if name == "":
-            if (body[i] != "").any():
-                row = int(np.flatnonzero((body[i] != "").to_numpy())[0])
+            filled = np.flatnonzero((values[i] != "")[codes[i][body]])
+            if len(filled):
                 problems.add(label, f"column {i + 1} has no name in the header but holds values",
-                             line=header_line, value=body[i].iloc[row],
+                             line=header_line, value=values[i][codes[i][body][filled[0]]],
                              hint="give every column a name on the first line")
             continue  # an unnamed, empty column (a trailing separator): ignored
         if name in seen:
@@ -248,9 +447,11 @@ def read_table(path: Path, label: str, required: list[str], *,
     missing_columns(label, list(seen), required, header_line, problems)
     problems.raise_if_any()
 
-    frame = body[keep].copy()
-    frame.columns = [names[i] for i in keep]
-    frame = frame.reset_index(drop=True)
+    columns = {}
+    for i in keep:
+        columns[names[i]] = _column(codes[i][body], values[i], categorical)
+        codes[i] = None  # done with: keeps the memory of one column at a time
+    frame = pd.DataFrame(columns, index=pd.RangeIndex(len(lines)))
     if frame.empty and not allow_no_rows:
         raise InputError(label, "has a header but no data rows", line=header_line + 1,
                          hint="add at least one row under the header")

@@ -14,10 +14,16 @@ coder), each file in either form of CONTRACT §1:
 A file without a ``coder`` column gets its file stem as coder when ``media_log/``
 holds several files, else ''. The result has one row per coded second and coder, with
 ``in_view`` normalised to the sorted unique codes joined by ';'.
+
+A study's log can hold millions of seconds but only a few distinct IDs, coders and
+code combinations. Its text columns are therefore read and returned as pandas
+categoricals (the same strings, each held once), every per-text check runs once per
+distinct value, and ``second`` is a 32-bit integer.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -26,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from pipeline.errors import InputError, ProblemCollector
-from pipeline.ingest.cells import non_negative_integers, pair_codes, report
+from pipeline.ingest.cells import distinct, non_negative_integers, pair_codes, report
 from pipeline.ingest.csvfile import CsvTable, missing_columns, read_table
 from pipeline.ingest.sessions import session_rows
 
@@ -35,6 +41,10 @@ SECOND_FORM = ["participant_id", "session_id", "second", "in_view", "attended"]
 INTERVAL_FORM = ["participant_id", "session_id", "platform", "start_s", "end_s", "role"]
 ROLES = ("in_view", "attended")
 COLUMNS = ["participant_id", "session_id", "second", "in_view", "attended", "coder"]
+#: The text columns of the log, held as categoricals.
+TEXT_COLUMNS = ["participant_id", "session_id", "in_view", "attended", "coder"]
+#: Order of the log's rows.
+ORDER = ["participant_id", "session_id", "coder", "second"]
 #: Characters a platform code may not hold: ';' separates codes, '+' joins the fine state.
 RESERVED = (";", "+")
 
@@ -102,15 +112,32 @@ def _session_rows(table: CsvTable, sessions: pd.DataFrame,
                   problems: ProblemCollector) -> tuple[np.ndarray, np.ndarray]:
     """Position of each row's session in ``sessions`` (-1 if none) and its duration."""
     pos = session_rows(table, sessions, problems, "media log")
-    duration = np.where(pos >= 0, sessions["duration_s"].to_numpy()[np.maximum(pos, 0)], 0)
-    return pos, duration.astype(np.int64)
+    # a row of no session (pos -1) takes the appended 0
+    duration = np.append(sessions["duration_s"].to_numpy(dtype=np.int64), 0)[pos]
+    return pos, duration
+
+
+def _categorical(codes: np.ndarray, values: list[str] | np.ndarray) -> pd.Categorical:
+    """The categorical of ``values[codes]`` (``values`` may repeat: equal ones merge)."""
+    remap, merged = pd.factorize(np.asarray(values, dtype=object))
+    return pd.Categorical.from_codes(remap.astype(np.int32)[codes] if len(codes) else codes,
+                                     pd.Index(merged, dtype=object))
 
 
 def _coders(table: CsvTable, fallback: str) -> pd.Series:
-    if "coder" in table.columns:
-        coder = table.frame["coder"]
+    """Each row's coder: the coder column, or ``fallback`` where it is empty or absent."""
+    frame = table.frame
+    categorical = isinstance(frame["participant_id"].dtype, pd.CategoricalDtype)
+    if "coder" not in table.columns:
+        if not categorical:
+            return pd.Series(fallback, index=frame.index, dtype=object)
+        return pd.Series(_categorical(np.zeros(len(frame), dtype=np.int8), [fallback]),
+                         index=frame.index)
+    coder = frame["coder"]
+    if not isinstance(coder.dtype, pd.CategoricalDtype):
         return coder.where(coder != "", fallback)
-    return pd.Series(fallback, index=table.frame.index, dtype=object)
+    named = [fallback if c == "" else c for c in coder.cat.categories]
+    return pd.Series(_categorical(coder.cat.codes.to_numpy(), named), index=frame.index)
 
 
 def _split_codes(cell: str) -> list[str]:
@@ -140,7 +167,7 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
     ok &= good_second & ~late
 
     # in_view: normalise each distinct cell once, then map back to rows
-    inverse, uniq = pd.factorize(frame["in_view"], sort=False)
+    inverse, uniq = distinct(frame["in_view"])
     norm, reserved, unknown = [], [], []
     for cell in uniq:
         codes = _split_codes(cell)
@@ -148,11 +175,11 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
         reserved.append([c for c in codes if "+" in c or c.lower() == "none"])
         unknown.append(vocab.unknown(codes))
         vocab.seen.update(codes)
-    norm_rows = np.asarray(norm, dtype=object)[inverse] if len(uniq) else np.zeros(0, object)
+    in_view = pd.Series(_categorical(inverse, norm), index=frame.index)
     bad_codes = np.zeros(len(table), dtype=bool)
-    for u in range(len(uniq)):
-        if not (reserved[u] or unknown[u]):
-            continue
+    bad = [u for u in range(len(uniq)) if reserved[u] or unknown[u]]
+    first_row = {u: np.argmax(inverse == u) for u in bad}
+    for u in sorted(bad, key=first_row.get):  # in the order the cells first appear
         rows = inverse == u
         bad_codes |= rows
         if reserved[u]:
@@ -168,37 +195,36 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
 
     # attended: one code, one of in_view; each distinct (in_view, attended) checked once
     attended = frame["attended"]
-    pinverse, upairs = pair_codes(pd.Series(norm_rows, dtype=object), attended)
+    pinverse, upairs = pair_codes(in_view, attended)
+    fine, several, not_in_view = 0, 1, 2
     verdict = []
     for view, att in upairs:
         if att == "":
-            verdict.append("")
+            verdict.append(fine)
         elif ";" in att:
-            verdict.append("several")
+            verdict.append(several)
         elif att not in view.split(";"):
-            verdict.append("not_in_view")
+            verdict.append(not_in_view)
         else:
-            verdict.append("")
-    verdict_rows = np.asarray(verdict, dtype=object)[pinverse] if len(upairs) else \
-        np.zeros(0, object)
-    several = verdict_rows == "several"
-    report(table, "attended", several, problems,
+            verdict.append(fine)
+    verdict_rows = np.asarray(verdict, dtype=np.int8)[pinverse] if len(upairs) else \
+        np.zeros(0, np.int8)
+    report(table, "attended", verdict_rows == several, problems,
            "names more than one platform: attended is the one platform looked at",
            hint="keep one code in attended; the others belong in in_view")
-    not_in_view = np.flatnonzero(verdict_rows == "not_in_view")
-    for row in not_in_view:
-        view = norm_rows[row] or "nothing"
+    for row in np.flatnonzero(verdict_rows == not_in_view):
+        view = in_view.iloc[row] or "nothing"
         problems.add(table.label, f"is not one of the platforms in view ({view})",
                      line=int(table.lines[row]), column="attended",
                      value=attended.iloc[row],
                      hint="attended must be empty or one of in_view")
-    ok &= verdict_rows == ""
+    ok &= verdict_rows == fine
 
     out = pd.DataFrame({
         "participant_id": frame["participant_id"],
         "session_id": frame["session_id"],
         "second": second,
-        "in_view": norm_rows,
+        "in_view": in_view,
         "attended": attended,
         "coder": _coders(table, coder),
     })
@@ -236,6 +262,9 @@ def _combinations_text(on: np.ndarray, codes: list[str]) -> np.ndarray:
 
 def _interval_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, coder: str,
                    problems: ProblemCollector) -> LogPart:
+    # Intervals are few (one row covers many seconds): plain text columns keep the
+    # grouping below simple.
+    table = dataclasses.replace(table, frame=table.frame.astype(object))
     frame = table.frame
     pos, duration = _session_rows(table, sessions, problems)
     ok = pos >= 0
@@ -382,10 +411,11 @@ def _form_of(table: CsvTable, problems: ProblemCollector) -> str | None:
 
 
 def _duplicates(parts: list[LogPart], problems: ProblemCollector) -> None:
+    """Report every (participant, session, second, coder) coded again, naming the first."""
     keys = ["participant_id", "session_id", "second", "coder"]
     frames = []
     for i, part in enumerate(parts):
-        f = part.frame[keys].copy()
+        f = part.frame[keys].astype({k: object for k in keys if k != "second"})
         f["part"], f["line"] = i, part.lines
         frames.append(f)
     every = pd.concat(frames, ignore_index=True)
@@ -410,13 +440,68 @@ def _duplicates(parts: list[LogPart], problems: ProblemCollector) -> None:
                      hint="each (participant, session, second, coder) is coded once")
 
 
+def _shared_categories(frames: list[pd.DataFrame]) -> None:
+    """Give each text column of ``frames`` the same sorted categories, in place.
+
+    Shared categories let ``pd.concat`` keep the columns categorical; sorted ones make
+    the log sort as its strings do. Categories are the values present, no others.
+    """
+    for column in TEXT_COLUMNS:
+        cols = [distinct(f[column]) for f in frames]
+        present = set()
+        for codes, values in cols:
+            present.update(values[np.bincount(codes, minlength=len(values)) > 0])
+        categories = pd.Index(sorted(present), dtype=object)
+        for f, (codes, values) in zip(frames, cols):
+            position = categories.get_indexer(values)  # -1 for values no row holds
+            f[column] = pd.Categorical.from_codes(position[codes] if len(codes) else codes,
+                                                  categories)
+
+
+def _sort_key(log: pd.DataFrame) -> np.ndarray | None:
+    """One int64 per row that orders rows as :data:`ORDER` does (None if it would overflow).
+
+    Equal keys mean the same participant, session, coder and second.
+    """
+    key = np.zeros(len(log), dtype=np.int64)
+    span = 1
+    for column in reversed(ORDER):
+        if column == "second":
+            values = log[column].to_numpy().astype(np.int64)
+            size = int(values.max()) + 1 if len(values) else 1
+        else:
+            values = log[column].cat.codes.to_numpy().astype(np.int64)
+            size = len(log[column].cat.categories)
+        if span * size >= 2**62:
+            return None
+        key += values * span
+        span *= size
+    return key
+
+
+def _empty_log() -> pd.DataFrame:
+    text = pd.Categorical([], categories=pd.Index([], dtype=object))
+    return pd.DataFrame({c: np.zeros(0, dtype=np.int32) if c == "second" else text
+                         for c in COLUMNS})
+
+
+def _compact_seconds(seconds: pd.Series) -> np.ndarray:
+    """Seconds as int32 (half the memory of int64) unless one does not fit (68 years)."""
+    values = seconds.to_numpy()
+    fits = not len(values) or int(values.max()) < np.iinfo(np.int32).max
+    return values.astype(np.int32 if fits else np.int64)
+
+
 def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None,
                    problems: ProblemCollector,
                    warnings: list[str]) -> tuple[pd.DataFrame, set[str], list[Path]]:
     """Read and check every media log file of the study.
 
     Returns (the log in second-by-second form with columns :data:`COLUMNS`, the codes
-    seen, the files read). Problems of every file are added to ``problems``.
+    seen, the files read). Problems of every file are added to ``problems``. The log's
+    rows are sorted by :data:`ORDER`; its text columns are categoricals whose
+    categories are the sorted values present ('' stays '': nothing in view, nothing
+    attended, no coder named), and ``second`` is int32.
     """
     files = media_log_files(root, warnings)
     several = len(files) > 1
@@ -424,7 +509,7 @@ def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None
     parts: list[LogPart] = []
     for path, label in files:
         try:
-            table = read_table(path, label, KEYS)
+            table = read_table(path, label, KEYS, categorical=True)
         except InputError as err:
             problems.extend(err.problems)
             continue
@@ -436,15 +521,23 @@ def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None
             parts.append(_interval_form(table, sessions, vocab, coder, problems))
         else:
             parts.append(_second_form(table, sessions, vocab, coder, problems))
+        del table
     parts = [p for p in parts if len(p.frame)]
-    if parts:
+    if not parts:
+        return _empty_log(), vocab.seen, [path for path, _ in files]
+    _shared_categories([p.frame for p in parts])
+    log = pd.concat([p.frame[COLUMNS] for p in parts], ignore_index=True)
+    log["second"] = _compact_seconds(log["second"])
+    key = _sort_key(log)
+    if key is None:  # more distinct keys than an int64 holds: let pandas do it
         _duplicates(parts, problems)
-        log = pd.concat([p.frame for p in parts], ignore_index=True)
+        log = log.sort_values(ORDER, kind="stable")
     else:
-        log = pd.DataFrame({c: pd.Series(dtype=object) for c in COLUMNS})
-    log["second"] = log["second"].astype(np.int64)
-    for c in ("participant_id", "session_id", "in_view", "attended", "coder"):
-        log[c] = log[c].astype(object)
-    log = log.sort_values(["participant_id", "session_id", "coder", "second"],
-                          kind="stable").reset_index(drop=True)
-    return log, vocab.seen, [path for path, _ in files]
+        ascending = bool((key[1:] >= key[:-1]).all())  # logs are usually written in order
+        order = None if ascending else np.argsort(key, kind="stable")
+        ordered = key if order is None else key[order]
+        if (ordered[1:] == ordered[:-1]).any():
+            _duplicates(parts, problems)
+        if order is not None:
+            log = log.take(order)
+    return log.reset_index(drop=True), vocab.seen, [path for path, _ in files]

@@ -151,3 +151,29 @@ def test_a_platform_named_none_is_refused(tmp_path):
     result = CliRunner().invoke(app, ["agree", str(study), "--out", str(tmp_path / "out")])
     assert result.exit_code == EXIT_INPUT
     assert "'none'" in result.output and "rename" in result.output
+
+
+def test_agreement_tables_do_not_depend_on_the_log_dtypes(tmp_path):
+    # ingest holds the log's text columns as categoricals (int32 seconds); a log of
+    # plain strings must give the very same tables
+    import dataclasses
+
+    import numpy as np
+
+    from pipeline.agreement.tables import agreement_tables, study_agreement
+    from pipeline.config import resolve_study
+    from pipeline.ingest import load_study
+
+    folder, cfg, _ = resolve_study(make_study(tmp_path / "study"))
+    study = load_study(folder, cfg)
+    assert isinstance(study.media_log["coder"].dtype, pd.CategoricalDtype)
+    plain = study.media_log.astype({"participant_id": object, "session_id": object,
+                                    "second": np.int64, "in_view": object,
+                                    "attended": object, "coder": object})
+    tables = {}
+    for name, log in (("categorical", study.media_log), ("plain", plain)):
+        results = study_agreement(dataclasses.replace(study, media_log=log), cfg)
+        tables[name] = agreement_tables(results, cfg.agreement.switch_tolerance_s,
+                                        cfg.agreement.switch_matching)
+    for name, table in tables["plain"].items():
+        pd.testing.assert_frame_equal(tables["categorical"][name], table, check_dtype=True)

@@ -2,10 +2,14 @@
 
 from __future__ import annotations
 
-import pytest
+import random
 
+import pandas as pd
+import pytest
 from ingest_builders import ROSTER, assert_names, load, refusal, write_study
+
 from pipeline.errors import InputError
+from pipeline.ingest import csvfile
 from pipeline.ingest.csvfile import read_table
 
 
@@ -129,3 +133,99 @@ def test_missing_roster_and_sessions_are_reported_together(tmp_path):
     write_study(tmp_path, roster=None, sessions=None)
     err = refusal(tmp_path)
     assert {p.file for p in err.problems} == {"roster.csv", "sessions.csv"}
+
+
+# ------------------------------------------- Arrow reader against the careful reader
+def _both_readers(data: bytes):
+    """(Arrow's records or None where it hands over, the careful reader's records or error)."""
+    parsed = csvfile._arrow_table(data, "f.csv")
+    fast = csvfile._arrow_records(*parsed) if parsed is not None else None
+    try:
+        careful = csvfile._careful_records(data, "f.csv", ["h"])
+    except InputError as err:
+        careful = err
+    return fast, careful
+
+
+def _rows(records) -> list[list[str]]:
+    return [list(v[c]) for c, v in zip(records.codes, records.values)]
+
+
+FIELDS = ["a", "", " ", '"a"', '"a,b"', '"a""b"', 'a"b', '"a"b', '"a" ', ' "a"', '"', '""',
+          '"""', '"a\nb"', '"a\r\nb"', "x;y", '"x;y"', "\t", "\u00e9", "\ufeff", '"a"b"c"',
+          '"a""', "1.0", "\\\"", "\u3000", "\xa0"]
+
+
+def test_arrow_reads_every_file_it_accepts_as_the_careful_reader_does():
+    # Random small files of awkward fields, separators, line endings and blank lines:
+    # where Arrow reads a file, the careful reader reads the same values on the same
+    # lines (so messages and line numbers cannot depend on which reader ran).
+    rng = random.Random(11)
+    accepted = 0
+    for _ in range(3000):
+        sep = rng.choice([",", ",", ";", "\t"])
+        n_cols, n_rows = rng.randrange(1, 4), rng.randrange(1, 5)
+        newline = rng.choice(["\n", "\r\n", "\r"])
+        rows = [sep.join(rng.choice(FIELDS) for _ in range(n_cols)) for _ in range(n_rows)]
+        text = sep.join(["h"] * n_cols) + newline + newline.join(rows)
+        text += rng.choice([newline, "", newline + newline])
+        data = text.encode(rng.choice(["utf-8", "utf-8", "utf-8-sig"]))
+        try:
+            fast, careful = _both_readers(data)
+        except InputError:
+            continue  # binary: both readers refuse it the same way (_refuse_binary)
+        if fast is None:
+            continue
+        accepted += 1
+        assert not isinstance(careful, InputError), (text, careful.render())
+        assert _rows(fast) == _rows(careful), text
+        assert fast.lines.tolist() == careful.lines.tolist(), text
+        assert fast.separator == careful.separator
+    assert accepted > 500  # most files are plain enough for Arrow
+
+
+@pytest.mark.parametrize("data", [
+    b'participant_id,cohort\np01,"a',  # a quote left open on the last line ...
+    b'participant_id,cohort\np01,"a\n',  # ... with or without the line break after it
+    b'participant_id,cohort\np01,a\n\np02,b\n',  # a blank line
+    b'participant_id,cohort\np01,"a\nb"\n',  # a quoted line break
+    b'participant_id,cohort\np01\n',  # a short row
+    b'\n\nparticipant_id,cohort\np01,a\n',  # blank lines before the header
+    b'participant_id,cohort\np01,caf\xe9\n',  # not UTF-8
+    b'\xef\xbb\xbf\xef\xbb\xbfparticipant_id,cohort\np01,a\n',  # two byte-order marks
+    "participant_id,cohort\np01,a\n".encode("utf-16"),
+])
+def test_arrow_hands_unusual_files_to_the_careful_reader(data):
+    assert csvfile._arrow_table(data, "roster.csv") is None
+
+
+def test_unclosed_quote_on_the_last_line_is_refused(tmp_path):
+    for data in (b'participant_id,cohort\np01,"a', b'participant_id,cohort\np01,"a\n'):
+        with pytest.raises(InputError) as info:
+            _read(tmp_path, data)
+        assert "never closed" in info.value.render()
+
+
+def test_plain_file_is_read_by_arrow(tmp_path, monkeypatch):
+    def refuse(*args):
+        raise AssertionError("the careful reader ran")
+
+    monkeypatch.setattr(csvfile, "_careful_records", refuse)
+    table = _read(tmp_path, b'participant_id,cohort\np01,"a, b" \r\np02, b\r\n')
+    assert table.frame.iloc[:, 1].tolist() == ["a, b", "b"]
+    assert table.lines.tolist() == [2, 3]
+
+
+def test_categorical_frame_holds_the_same_strings(tmp_path):
+    data = (b"participant_id,cohort,note\np01, alpha ,\np02,beta, x\n\np03,alpha ,participant_id\n"
+            b",,\n")
+    text = _read(tmp_path, data)
+    cats = _read(tmp_path, data, categorical=True)
+    assert cats.columns == text.columns and cats.lines.tolist() == text.lines.tolist()
+    for name in text.columns:
+        assert isinstance(cats.frame[name].dtype, pd.CategoricalDtype)
+        assert cats.frame[name].astype(object).tolist() == text.frame[name].tolist()
+        # the categories are the values present (not the header's name, say)
+        assert sorted(cats.frame[name].cat.categories) == sorted(set(text.frame[name]))
+    assert text.frame["cohort"].tolist() == ["alpha", "beta", "alpha"]
+    assert text.frame["note"].tolist() == ["", "x", "participant_id"]

@@ -2,9 +2,13 @@
 
 from __future__ import annotations
 
-import pytest
+import random
 
+import pandas as pd
+import pytest
 from ingest_builders import assert_names, load, refusal, second_log, write_study
+
+from pipeline.ingest import media_log
 
 HEADER = "participant_id,session_id,second,in_view,attended\n"
 INTERVAL_HEADER = "participant_id,session_id,platform,start_s,end_s,role\n"
@@ -24,7 +28,7 @@ def test_second_form_is_read_and_in_view_normalised(tmp_path):
                                     "attended", "coder"]
     assert log["in_view"].tolist() == ["phone;tv", "tv", "", "phone;tv"]
     assert log["attended"].tolist() == ["tv", "", "", "phone"]
-    assert log["second"].tolist() == [0, 1, 2, 5] and str(log["second"].dtype) == "int64"
+    assert log["second"].tolist() == [0, 1, 2, 5] and str(log["second"].dtype) == "int32"
     assert log["coder"].tolist() == ["", "", "", ""]
 
 
@@ -245,7 +249,7 @@ def test_interval_and_second_files_mix_with_stem_coders(tmp_path):
         "ana.csv": _log("p01,s1,tv,0,3,in_view", header=INTERVAL_HEADER),
         "ben.csv": _log("p01,s1,0,tv,", "p01,s1,1,tv,tv")})
     m = load(tmp_path).media_log
-    assert m.groupby("coder").size().to_dict() == {"ana": 3, "ben": 2}
+    assert m.groupby("coder", observed=True).size().to_dict() == {"ana": 3, "ben": 2}
 
 
 @pytest.mark.parametrize("row,column,value,says", [
@@ -285,3 +289,69 @@ def test_file_mixing_both_forms_is_refused(tmp_path):
                 "start_s\np01,s1,0,tv,tv,0\n")
     assert "mixes the columns of both" in refusal(tmp_path).render()
 
+
+
+# ------------------------------------------------------ how the log is held in memory
+def test_log_text_columns_are_categoricals_of_the_values_present(tmp_path):
+    write_study(tmp_path, media_log=second_log(coder="coder_a"))
+    log = load(tmp_path).media_log
+    for column in ("participant_id", "session_id", "in_view", "attended", "coder"):
+        assert isinstance(log[column].dtype, pd.CategoricalDtype), column
+        categories = list(log[column].cat.categories)
+        assert categories == sorted(set(log[column].astype(object))), column
+    assert list(log["in_view"].cat.categories) == ["", "phone;tv", "tv"]  # '' stays ''
+
+
+def _shuffled_log(seed: int) -> str:
+    rows = second_log(coder="coder_a").splitlines()
+    body = rows[1:] + [r.replace("coder_a", "coder_b") for r in rows[1:][::3]]
+    random.Random(seed).shuffle(body)
+    return "\n".join([rows[0], *body]) + "\n"
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_log_rows_are_sorted_as_by_their_strings(tmp_path, seed):
+    write_study(tmp_path, media_log=_shuffled_log(seed))
+    log = load(tmp_path).media_log
+    plain = log.astype({c: object for c in ("participant_id", "session_id", "in_view",
+                                            "attended", "coder")})
+    expected = plain.sort_values(["participant_id", "session_id", "coder", "second"],
+                                 kind="stable").reset_index(drop=True)
+    assert plain.equals(expected)
+
+
+def test_sort_without_the_int64_key_gives_the_same_log_and_problems(tmp_path, monkeypatch):
+    # _sort_key gives up (None) when the keys could overflow an int64; pandas then sorts
+    # and finds the repeats. Both ways must agree.
+    valid = _shuffled_log(4)
+    write_study(tmp_path / "valid", media_log=valid)
+    write_study(tmp_path / "repeats", media_log=valid + "p01,s1,3,tv,tv,coder_a\n"
+                "p02,s1,9,phone;tv,phone,coder_a\n")
+    log, err = load(tmp_path / "valid").media_log, refusal(tmp_path / "repeats")
+    assert len(err.problems) == 2
+    monkeypatch.setattr(media_log, "_sort_key", lambda log: None)
+    assert load(tmp_path / "valid").media_log.equals(log)
+    assert [p.render() for p in refusal(tmp_path / "repeats").problems] == \
+        [p.render() for p in err.problems]
+
+
+def test_several_files_share_one_set_of_categories(tmp_path):
+    write_study(tmp_path, media_log=None, media_log_files={
+        "ana.csv": _log("p01,s1,tv,0,3,in_view", "p01,s1,tv,1,2,attended",
+                        header=INTERVAL_HEADER),
+        "ben.csv": _log("p01,s1,0,magazine,", "p02,s1,1,tv,tv")})
+    log = load(tmp_path).media_log
+    assert isinstance(log["coder"].dtype, pd.CategoricalDtype)
+    assert list(log["coder"].cat.categories) == ["ana", "ben"]
+    assert list(log["in_view"].cat.categories) == ["magazine", "tv"]
+    assert log["attended"].astype(object).tolist() == ["", "tv", "", "", "tv"]
+    assert log["coder"].astype(object).tolist() == ["ana", "ana", "ana", "ben", "ben"]
+
+
+def test_bad_in_view_cells_are_reported_in_the_order_they_appear(tmp_path):
+    # the header's own name is a value of the column too: order still by the rows
+    write_study(tmp_path, media_log=_log("p01,s1,0,tv,tv", "p01,s1,1,radio,",
+                                         "p01,s1,2,in_view,", "p01,s1,3,radio,"))
+    err = refusal(tmp_path)
+    assert [(p.line, p.value) for p in err.problems] == [(3, "radio"), (5, "radio"),
+                                                        (4, "in_view")]

@@ -148,6 +148,14 @@ class TaskPool:
     def __exit__(self, *exc) -> None:
         self.close()
 
+    def submit(self, fn: Callable, arg: Any) -> Future | _Done:
+        """Start one task; ``.result()`` gives its Outcome. On a local pool it runs in
+        a worker while the caller goes on; otherwise (serial runs, and cluster runs,
+        whose group work stays with the runner) it runs here and now."""
+        if self._pool is not None:
+            return self._pool.submit(_call, fn, arg)
+        return _Done(_call(fn, arg))
+
     def map(self, fn: Callable, args: Sequence[Any], *, stop_on_error: bool = False
             ) -> Iterator[tuple[int, Outcome]]:
         """Yield ``(index, Outcome)`` for each task as it finishes.
@@ -190,6 +198,16 @@ class TaskPool:
                     stopped = True
                 if not stopped:
                     submit_next()
+
+
+class _Done:
+    """An outcome computed on the spot, shaped like a future."""
+
+    def __init__(self, outcome: Outcome):
+        self.outcome = outcome
+
+    def result(self) -> Outcome:
+        return self.outcome
 
 
 def _ready() -> bool:

@@ -39,7 +39,7 @@ from pipeline.metrics.arousal import add_arousal, arousal_source
 from pipeline.metrics.session import session_metrics
 from pipeline.metrics.switch_locked import (session_seed, switch_locked_methods,
                                             switch_locked_session, switch_locked_summary)
-from pipeline.models import compare, compare_survey, survey_methods
+from pipeline.models import ModelResults, compare, compare_survey, survey_methods
 from pipeline.outputs import OutputFolder, atomic_write, sha256_file, write_parquet
 from pipeline.signals import process_recording
 from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
@@ -284,12 +284,11 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
                 notes.append(f"{key.label()}: coded by {', '.join(coders)}; run uses "
                              f"{coder!r}" + (" ([coding] primary_coder)" if wanted in coders
                                              else " (first in sorted order)"))
+        # the code columns stay categorical, as ingest made them (compact to ship to
+        # workers; the stages take either dtype)
         if all_coders is not None and len(codes):
-            all_coders[len(out)] = codes[["second", "in_view", "attended", "coder"]].astype(
-                {"in_view": object, "attended": object, "coder": object})
+            all_coders[len(out)] = codes[["second", "in_view", "attended", "coder"]]
         codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
-        # stages see plain strings whatever dtype ingest chose for the whole log
-        codes = codes.astype({"in_view": object, "attended": object})
         pairs = sync.get((key.participant_id, key.session_id))
         out.append(SessionInputs(
             key=key,
@@ -597,7 +596,8 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
 
     # -- models and group analyses
     t0 = time.perf_counter()
-    analysis_lines = _group_analyses(study, cfg, tables, finished, ok, outdir, methods)
+    analysis_lines = _group_analyses(pool, study, cfg, tables, finished, ok, outdir,
+                                     methods)
     details += analysis_lines
     summary += _headlines(analysis_lines)
     if analysis_lines:
@@ -692,34 +692,30 @@ def _describe(study: Study, cfg: Config, sessions: pd.DataFrame, qc: pd.DataFram
     return lines
 
 
-def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
+def _group_analyses(pool: TaskPool, study: Study, cfg: Config,
+                    tables: dict[str, pd.DataFrame],
                     finished: dict[int, Finished], ok: list[int], outdir: OutputFolder,
                     methods: dict) -> list[str]:
     """Models, switch-locked arousal, coder agreement and survey comparisons."""
     m = cfg.models
     lines: list[str] = []
-    results = compare(tables["metrics/sessions.csv"], tables["metrics/states.csv"],
-                      tables["metrics/groups.csv"], study.roster, m, cfg.cohorts,
-                      exclude_unusable=cfg.qc.exclude_flagged_from_models)
+    # The cohort models run in a worker (on a local pool) while this process does the
+    # switch-locked summary and the agreement tables.
+    model_args = (tables["metrics/sessions.csv"], tables["metrics/states.csv"],
+                  tables["metrics/groups.csv"], study.roster, m, cfg.cohorts,
+                  cfg.qc.exclude_flagged_from_models)
+    models_pending = pool.submit(_compare_task, model_args)
+    more_lines = _switch_locked(study, cfg, finished, ok, outdir, methods)
+    agreement_lines = _agreement(study, cfg, outdir, methods, finished, ok)
+    outcome = models_pending.result()
+    # a failure is re-raised here with its own type and details, by fitting again
+    results = outcome.value if outcome.ok else _compare_task(model_args)
     outdir.csv("models/comparisons.csv", results.comparisons, "models")
     outdir.csv("models/variance_components.csv", results.variances, "models")
-    methods["models"] = dict(results.methods)
-    lines += results.summary
-
-    parts = [finished[i].switch_locked for i in ok
-             if finished[i].switch_locked is not None and len(finished[i].switch_locked)]
-    per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
-    traj, test, more = switch_locked_summary(
-        per_session, study.roster, pre_s=m.switch_locked_pre_s,
-        min_events=m.min_switch_events, confidence=m.confidence_level,
-        reference=cfg.cohorts.reference)
-    outdir.csv("metrics/switch_locked.csv", traj, "metrics")
-    outdir.csv("models/switch_locked_test.csv", test, "models")
-    methods["models"].update(switch_locked_methods(m.switch_locked_window_s,
-                                                   m.switch_locked_pre_s))
-    lines += more
-
-    lines += _agreement(study, cfg, outdir, methods, finished, ok)
+    methods["models"] = dict(results.methods) | methods.pop("switch_locked")
+    if "agreement" in methods:  # keep the manifest's order: signals, models, agreement
+        methods["agreement"] = methods.pop("agreement")
+    lines += results.summary + more_lines + agreement_lines
     if study.survey is not None:
         table = compare_survey(study.survey, study.roster, m.fdr_q, method=m.survey_method,
                                reference=cfg.cohorts.reference,
@@ -729,6 +725,31 @@ def _group_analyses(study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
         outdir.csv("models/survey.csv", table, "models")
         methods["models"].update(survey_methods(m.survey_method, m.fdr_method))
     return lines
+
+
+def _compare_task(args: tuple) -> ModelResults:
+    """The cohort comparisons as one task (arguments as one tuple, for the pool)."""
+    sessions, states, groups, roster, models_cfg, cohorts_cfg, exclude = args
+    return compare(sessions, states, groups, roster, models_cfg, cohorts_cfg,
+                   exclude_unusable=exclude)
+
+
+def _switch_locked(study: Study, cfg: Config, finished: dict[int, Finished], ok: list[int],
+                   outdir: OutputFolder, methods: dict) -> list[str]:
+    """Switch-locked arousal: the cohort trajectories and their test."""
+    m = cfg.models
+    parts = [finished[i].switch_locked for i in ok
+             if finished[i].switch_locked is not None and len(finished[i].switch_locked)]
+    per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
+    traj, test, more = switch_locked_summary(
+        per_session, study.roster, pre_s=m.switch_locked_pre_s,
+        min_events=m.min_switch_events, confidence=m.confidence_level,
+        reference=cfg.cohorts.reference)
+    outdir.csv("metrics/switch_locked.csv", traj, "metrics")
+    outdir.csv("models/switch_locked_test.csv", test, "models")
+    methods["switch_locked"] = switch_locked_methods(m.switch_locked_window_s,
+                                                     m.switch_locked_pre_s)
+    return more
 
 
 def _multi_coded(study: Study) -> bool:
@@ -743,7 +764,10 @@ def check_agreement_codes(study: Study) -> None:
     from pipeline.agreement.session import NONE
     from pipeline.errors import InputError
 
-    if (study.media_log["attended"].astype(str) == NONE).any():
+    attended = study.media_log["attended"]
+    values = attended.cat.categories if isinstance(attended.dtype, pd.CategoricalDtype) \
+        else attended.astype(str).unique()
+    if NONE in set(values):
         raise InputError(
             "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
             "tables name 'nothing attended'", column="attended", value=NONE,

@@ -32,7 +32,7 @@ from pipeline.align.clock import ClockMap
 from pipeline.align.timeline import build_timeline
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
-from pipeline.execution import Outcome, TaskPool, keep_freed_memory
+from pipeline.execution import Outcome, TaskPool, keep_freed_memory, return_freed_memory
 from pipeline.ingest import load_study
 from pipeline.ingest import read_recording_checked
 from pipeline.metrics.arousal import add_arousal, arousal_source
@@ -430,7 +430,6 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
          ) -> RunResult:
     timings: dict[str, float] = {}
     _arrow_threads(pool.workers if pool.local_files else 1)
-    keep_freed_memory()  # serial runs do the per-session work in this process
     study = load_study(folder, cfg)
     timings["ingest_s"] = time.perf_counter() - started
     outdir = OutputFolder(Path(out))
@@ -453,6 +452,11 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
 
     # -- phase 1: signals + align, cached per session
     t0 = time.perf_counter()
+    return_freed_memory()  # ingest's temporary arrays
+    if pool.runs_here:
+        # Serial runs do the per-session work in this process: from here on keep
+        # freed memory for the next session's arrays.
+        keep_freed_memory()
     prepared: dict[int, Prepared] = {}
     moments: dict[int, tuple[int, float, float]] = {}
     cache_file = {i: outdir.path(f"{CACHE_DIR}/{inp.key.stem()}.pkl")

@@ -78,7 +78,21 @@ def krippendorff_alpha_nominal(counts: np.ndarray) -> float:
     Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg
     School for Communication, University of Pennsylvania (working paper).
     """
-    o = coincidence_matrix(counts)
+    return alpha_from_coincidences(coincidence_matrix(counts))
+
+
+def alpha_from_coincidences(o: np.ndarray) -> float:
+    """Nominal alpha from a coincidence matrix (see :func:`krippendorff_alpha_nominal`).
+
+    Coincidences add up over units, so the matrices of several groups of units (e.g.
+    sessions) summed over one category order give the alpha of all their units pooled.
+
+    References
+    ----------
+    Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg
+    School for Communication, University of Pennsylvania (working paper).
+    """
+    o = np.asarray(o, dtype=float)
     nc = o.sum(axis=1)
     n = nc.sum()
     if n < 2:
@@ -94,6 +108,23 @@ def krippendorff_alpha_nominal(counts: np.ndarray) -> float:
 ALPHA_METHODS = {
     "nominal": krippendorff_alpha_nominal,  # Krippendorff 2011
 }
+
+
+def pooled_alpha_nominal(tables: list[pd.DataFrame]) -> float:
+    """Nominal alpha over the units of several units-by-coders label tables pooled,
+    without stacking them: their coincidence matrices are summed (one table's counts in
+    memory at a time). NaN for no tables."""
+    if not tables:
+        return float("nan")
+    seen: set[str] = set()
+    for t in tables:
+        seen.update(str(v) for v in pd.unique(t.to_numpy(dtype=object).ravel())
+                    if not pd.isna(v))
+    categories = sorted(seen)
+    total = np.zeros((len(categories), len(categories)))
+    for t in tables:
+        total += coincidence_matrix(value_counts_by_unit(t, categories)[0])
+    return alpha_from_coincidences(total)
 
 
 def alpha(codes: pd.DataFrame, level: str = "nominal") -> float:

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from pipeline.agreement.alpha import krippendorff_alpha_nominal, value_counts_by_unit
+from pipeline.agreement.alpha import pooled_alpha_nominal
 from pipeline.agreement.kappa import kappa, landis_koch_band, observed_agreement
 from pipeline.agreement.session import (
     ALPHA_COLUMNS,
@@ -67,10 +67,7 @@ def pooled_summary(results: list[SessionAgreement], tolerance_s: int,
 
     att = [r.labels for r in results if r.labels is not None]
     st = [r.state_labels for r in results if r.state_labels is not None]
-    alpha_att = (krippendorff_alpha_nominal(value_counts_by_unit(
-        pd.concat(att, ignore_index=True))[0]) if att else float("nan"))
-    alpha_st = (krippendorff_alpha_nominal(value_counts_by_unit(
-        pd.concat(st, ignore_index=True))[0]) if st else float("nan"))
+    alpha_att, alpha_st = pooled_alpha_nominal(att), pooled_alpha_nominal(st)
     kappas = rows["kappa_attended"].astype(float)
     coders = sorted({c for r in results if r.pairs for c in r.coders})
     return {

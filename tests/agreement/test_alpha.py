@@ -7,7 +7,12 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from pipeline.agreement.alpha import alpha, coincidence_matrix, value_counts_by_unit
+from pipeline.agreement.alpha import (
+    alpha,
+    coincidence_matrix,
+    pooled_alpha_nominal,
+    value_counts_by_unit,
+)
 from pipeline.errors import ConfigError
 
 NA = np.nan
@@ -115,3 +120,14 @@ def test_alpha_unknown_level_lists_choices():
     with pytest.raises(ConfigError) as err:
         alpha(pd.DataFrame({"a": ["x"], "b": ["y"]}), level="ordinal")
     assert "nominal" in err.value.hint
+
+
+def test_pooled_alpha_splits_the_2011_example_without_changing_it():
+    # Coincidences add over units (Krippendorff 2011, section C), so alpha over the
+    # example's 12 units is the same whether they are pooled as one table or as three
+    # tables with different coder columns (one coder absent from one table).
+    units = _as_units_by_coders(K2011)
+    parts = [units.iloc[:5], units.iloc[5:9], units.iloc[9:].drop(columns=[0])]
+    assert pooled_alpha_nominal(parts) == pytest.approx(alpha(units), abs=1e-12)
+    assert round(pooled_alpha_nominal(parts), 3) == 0.743
+    assert np.isnan(pooled_alpha_nominal([]))

@@ -51,6 +51,16 @@ def write_parquet(target: Path, df: pd.DataFrame) -> str:
     return sha256_file(target)
 
 
+def write_csvs(items: list[tuple[Path, pd.DataFrame]]) -> list[str]:
+    """Write tables as CSV atomically (a task the runner hands to a worker); return
+    each file's SHA-256."""
+    out = []
+    for target, df in items:
+        atomic_write(target, lambda p, df=df: df.to_csv(p, index=False))
+        out.append(sha256_file(target))
+    return out
+
+
 class OutputFolder:
     """A run's output folder; records what was written and refuses paths outside it."""
 

@@ -40,7 +40,8 @@ from pipeline.metrics.session import session_metrics
 from pipeline.metrics.switch_locked import (session_seed, switch_locked_methods,
                                             switch_locked_session, switch_locked_summary)
 from pipeline.models import ModelResults, compare, compare_survey, survey_methods
-from pipeline.outputs import OutputFolder, atomic_write, sha256_file, write_parquet
+from pipeline.outputs import (OutputFolder, atomic_write, sha256_file, write_csvs,
+                              write_parquet)
 from pipeline.signals import process_recording
 from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
 
@@ -584,9 +585,10 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
                                                         "onset_video_s", "peak_video_s",
                                                         "amplitude_us", "rise_time_s",
                                                         "half_recovery_s"]))
-    for rel, df in tables.items():
-        stage = rel.split("/")[0]
-        outdir.csv(rel, df, stage)
+    # The session tables are written by a worker (on a local pool) while this process
+    # goes on with the group analyses.
+    writes = [(outdir.path(rel), df) for rel, df in tables.items()]
+    tables_pending = pool.submit(write_csvs, writes)
 
     summary = [f"ran {len(ok)} of {total} sessions"
                + (f" ({cached} from cache)" if cached else "")]
@@ -608,6 +610,11 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
         outdir.text("models/summary.txt", "\n".join(analysis_lines) + "\n", "models")
         summary.append("full model summary: models/summary.txt")
     timings["models_s"] = time.perf_counter() - t0
+    written = tables_pending.result()
+    if not written.ok:  # write here, so that the error is raised with its own details
+        written.value = write_csvs(writes)
+    for (target, _), sha in zip(writes, written.value):
+        outdir.record(target, target.relative_to(outdir.root).parts[0], sha)
 
     manifest = {
         "tool": "screenweave",

@@ -90,6 +90,9 @@ class PrepareOutcome:
     cache_key: str
     from_cache: bool
     cache_sha256: str | None = None
+    #: SHA-256 of the session's recording (hashed for the cache key; reused by the
+    #: manifest so the runner does not read the file again)
+    recording_sha256: str | None = None
 
 
 def prepare_session(task: PrepareTask) -> Prepared:
@@ -148,7 +151,9 @@ def store_cached(path: Path, key: str, prepared: Prepared) -> str:
 
 def prepare_cached(task: PrepareTask) -> PrepareOutcome:
     """Phase 1 of one session, through its cache file when the task names one."""
-    key = _cache_key(task.inputs, task.cfg)
+    rec = task.inputs.recording_path
+    rec_sha = sha256_file(rec) if rec is not None else None
+    key = _cache_key(task.inputs, task.cfg, rec_sha)
     prep = None
     if task.cache_file is not None and not task.fresh:
         prep = load_cached(task.cache_file, key)
@@ -162,7 +167,7 @@ def prepare_cached(task: PrepareTask) -> PrepareOutcome:
             sha = store_cached(task.cache_file, key, prep)
         prep.timeline = None  # the file holds it; phase 3 reads it back there
     return PrepareOutcome(prepared=prep, moments=moments, cache_key=key,
-                          from_cache=from_cache, cache_sha256=sha)
+                          from_cache=from_cache, cache_sha256=sha, recording_sha256=rec_sha)
 
 
 @dataclass
@@ -305,7 +310,10 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
     return out, notes
 
 
-def _cache_key(inputs: SessionInputs, cfg: Config) -> str:
+def _cache_key(inputs: SessionInputs, cfg: Config,
+               recording_sha256: str | None = None) -> str:
+    """Hash of everything phase 1 reads: version, [signals] settings, the session's
+    codes and sync pairs, and its recording's bytes (by their SHA-256)."""
     h = hashlib.sha256()
     h.update(__version__.encode())
     h.update(cfg.signals.fingerprint().encode())
@@ -313,7 +321,7 @@ def _cache_key(inputs: SessionInputs, cfg: Config) -> str:
     h.update(inputs.sync_pairs.tobytes())
     h.update(pd.util.hash_pandas_object(inputs.codes, index=False).to_numpy().tobytes())
     if inputs.recording_path is not None:
-        h.update(sha256_file(inputs.recording_path).encode())
+        h.update((recording_sha256 or sha256_file(inputs.recording_path)).encode())
     return h.hexdigest()
 
 
@@ -480,6 +488,7 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
                 todo.append(i)
         tasks = [PrepareTask(inputs[i], cfg) for i in todo]
     cached = len(prepared)
+    input_sha256: dict[Path, str] = {}
     bar = Progress(total, "signals", quiet)
     for _ in prepared:
         bar.step()
@@ -499,6 +508,8 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
                 outdir.record(cache_file[i], "cache", res.cache_sha256)
             prepared[i] = res.prepared
             moments[i] = res.moments
+            if res.recording_sha256:
+                input_sha256[inputs[i].recording_path] = res.recording_sha256
     finally:
         bar.close()
     timings["signals_s"] = time.perf_counter() - t0
@@ -627,7 +638,7 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
         "platform_groups": study.platform_groups,
         "vocabulary_declared": study.vocabulary_declared,
         "inputs": {str(p.relative_to(folder)) if p.is_relative_to(folder) else str(p):
-                   sha256_file(p) for p in study.input_files},
+                   input_sha256.get(p) or sha256_file(p) for p in study.input_files},
         "versions": _versions(),
         "methods": methods,
         "sessions_total": total,

@@ -9,6 +9,8 @@ For each size a reference study is made by `screenweave synth` (4-hour sessions 
   with psutil: summed resident set sizes (RSS) and summed proportional set sizes
   (PSS, which counts pages shared by forked workers once);
 * the run's own stage timings (``timings_s`` of its manifest);
+* the machine's own ceiling: the speedup of 2 processes over 1 on a perfectly parallel,
+  purely compute-bound task (no run can beat it);
 * the peer baseline a researcher would otherwise script: NeuroKit2's
   ``eda_process`` on the EDA channel of every recording of the study (EDA
   processing alone, no alignment, metrics, models or report).
@@ -104,6 +106,29 @@ for f in files:
 print(time.perf_counter() - t0, hours, len(files))
 """
 
+CEILING_SCRIPT = r"""
+import time, multiprocessing as mp
+import numpy as np
+def work(_):
+    a = np.random.default_rng(0).random(2_000_000)
+    return sum(float(np.sort(a)[1000]) for _ in range(12))
+if __name__ == "__main__":
+    t = time.perf_counter(); [work(i) for i in range(4)]; serial = time.perf_counter() - t
+    with mp.Pool(2) as pool:
+        pool.map(work, range(2))  # warm the workers up
+        t = time.perf_counter(); pool.map(work, range(4)); two = time.perf_counter() - t
+    print(serial / two)
+"""
+
+
+def machine_ceiling() -> float:
+    """Speedup of 2 processes over 1 on a purely compute-bound, perfectly parallel task
+    (sorting arrays): what this machine allows any 2-worker run at best."""
+    out = subprocess.run([str(BIN / "python"), "-c", CEILING_SCRIPT], check=True,
+                         capture_output=True, text=True).stdout
+    return float(out.strip().splitlines()[-1])
+
+
 #: NeuroKit2 is run on at most this many recordings of a study (evenly spaced); its
 #: time for the whole study is extrapolated by the number of recordings (all of one
 #: length), and the JSON says so.
@@ -174,9 +199,11 @@ def main() -> None:
         rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work,
                                reuse=args.reuse and args.keep is not None))
         print(json.dumps(rows[-1], indent=1), flush=True)
+    ceiling = machine_ceiling()
     result = {
         "machine": {"cores": os.cpu_count(), "memory_gb": psutil.virtual_memory().total / 2**30,
-                    "python": sys.version.split()[0]},
+                    "python": sys.version.split()[0],
+                    "two_process_ceiling_speedup": ceiling},
         "rows": rows,
         "rss_growth_smallest_to_largest_workers2": rows[-1]["peak_rss_mb_workers2"]
         / rows[0]["peak_rss_mb_workers2"],
@@ -198,7 +225,9 @@ def main() -> None:
               f"{r['peak_rss_mb_workers2']:.0f} | {r['peak_pss_mb_workers2']:.0f} | "
               f"{r['neurokit2_eda_process_s']:.1f} | "
               f"{r['run_vs_neurokit2_time']:.3f} |")
-    print(f"\nRSS growth smallest -> largest (2 workers): "
+    print(f"\nthis machine's ceiling for 2 processes on a perfectly parallel compute task: "
+          f"{ceiling:.2f}x")
+    print(f"RSS growth smallest -> largest (2 workers): "
           f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x (PSS "
           f"{result['pss_growth_smallest_to_largest_workers2']:.2f}x); written {target}")
 

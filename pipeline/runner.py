@@ -444,7 +444,9 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
     outdir = OutputFolder(Path(out))
     multi_coded = _multi_coded(study)
     if multi_coded:
-        check_agreement_codes(study)
+        from pipeline.agreement.tables import check_reserved_code
+
+        check_reserved_code(study.media_log)
     all_coders: dict[int, pd.DataFrame] | None = {} if multi_coded else None
     inputs, coder_notes = session_inputs(study, cfg, all_coders)
     total = len(inputs)
@@ -779,22 +781,6 @@ def _multi_coded(study: Study) -> bool:
     per_session = study.media_log.groupby(["participant_id", "session_id"],
                                           observed=True)["coder"].nunique()
     return bool((per_session > 1).any())
-
-
-def check_agreement_codes(study: Study) -> None:
-    """Refuse a platform code that the agreement tables use for 'nothing attended'."""
-    from pipeline.agreement.session import NONE
-    from pipeline.errors import InputError
-
-    attended = study.media_log["attended"]
-    values = attended.cat.categories if isinstance(attended.dtype, pd.CategoricalDtype) \
-        else attended.astype(str).unique()
-    if NONE in set(values):
-        raise InputError(
-            "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
-            "tables name 'nothing attended'", column="attended", value=NONE,
-            hint="rename the platform code (e.g. 'none_device'); leave attended empty "
-            "for nothing attended")
 
 
 def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict,

@@ -119,6 +119,20 @@ def agreement_tables(results: list[SessionAgreement], tolerance_s: int,
     }
 
 
+def check_reserved_code(log: pd.DataFrame) -> None:
+    """Refuse a platform code that the agreement tables use for 'nothing attended'."""
+    attended = log["attended"]
+    # a categorical log (as ingest makes it) is checked on its distinct values only
+    values = (attended.cat.categories if isinstance(attended.dtype, pd.CategoricalDtype)
+              else attended.astype(str).unique())
+    if NONE in set(values):
+        raise InputError(
+            "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
+            "tables name 'nothing attended'", column="attended", value=NONE,
+            hint="rename the platform code (e.g. 'none_device'); leave attended empty "
+            "for nothing attended")
+
+
 def study_agreement(study: Study, cfg: Config) -> list[SessionAgreement]:
     """Every session's agreement result (sessions with one coder give no pairs).
 
@@ -126,13 +140,7 @@ def study_agreement(study: Study, cfg: Config) -> list[SessionAgreement]:
     ``cfg.switching`` and ``cfg.dwell``.
     """
     log = study.media_log
-    clash = log["attended"] == NONE
-    if clash.any():
-        raise InputError(
-            "media_log.csv", f"is a platform code, and {NONE!r} is how the agreement "
-            "tables name 'nothing attended'", column="attended", value=NONE,
-            hint="rename the platform code (e.g. 'none_device'); leave attended empty "
-            "for nothing attended")
+    check_reserved_code(log)
     durations = study.sessions.set_index(["participant_id", "session_id"])["duration_s"]
     results: list[SessionAgreement] = []
     # observed=True: the log's ID columns may be categorical (only the pairs present wanted)

@@ -270,18 +270,30 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
     notes: list[str] = []
     roster = study.roster.set_index("participant_id")["cohort"]
     log = study.media_log
-    # observed=True: the log's ID columns may be categorical (only seen pairs wanted)
-    groups = {k: log_part for k, log_part in log.groupby(["participant_id", "session_id"],
-                                                          sort=False, observed=True)}
+    # the rows of each session, by position (observed=True: the log's ID columns may be
+    # categorical, and only the pairs seen are wanted)
+    rows_of = log.groupby(["participant_id", "session_id"], sort=False, observed=True).indices
+    coded = log[["second", "in_view", "attended", "coder"]]
+    codes_only = coded[["second", "in_view", "attended"]]
+    coder_col = log["coder"]
     sync = {k: part for k, part in study.sync.groupby(["participant_id", "session_id"],
                                                       sort=False)}
     out = []
     for row in study.sessions.itertuples(index=False):
         key = SessionKey(row.participant_id, row.session_id)
-        codes = groups.get((key.participant_id, key.session_id))
-        if codes is None:
-            codes = log.iloc[0:0]
-        coders = sorted(str(c) for c in codes["coder"].unique())
+        rows = rows_of.get((key.participant_id, key.session_id))
+        if rows is None:
+            rows = np.empty(0, dtype=np.intp)
+        # a media log written session by session holds each session in one run of
+        # rows, which is cut as a view; otherwise the rows are gathered
+        run_of_rows = len(rows) > 0 and rows[-1] - rows[0] + 1 == len(rows)
+        pick = slice(rows[0], rows[-1] + 1) if run_of_rows else rows
+
+        def take(frame, pick=pick):
+            return frame.iloc[pick]
+
+        session_coders = take(coder_col)
+        coders = sorted(str(c) for c in _distinct(session_coders))
         coder = ""
         if coders:
             wanted = cfg.coding.primary_coder
@@ -292,15 +304,19 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
                                              else " (first in sorted order)"))
         # the code columns stay categorical, as ingest made them (compact to ship to
         # workers; the stages take either dtype)
-        if all_coders is not None and len(codes):
-            all_coders[len(out)] = codes[["second", "in_view", "attended", "coder"]]
-        codes = codes[codes["coder"] == coder][["second", "in_view", "attended"]]
+        if all_coders is not None and len(rows):
+            all_coders[len(out)] = take(coded)
+        codes = take(codes_only)
+        if len(coders) > 1:
+            codes = codes[(session_coders == coder).to_numpy()]
+        if not codes["second"].is_monotonic_increasing:
+            codes = codes.sort_values("second")
         pairs = sync.get((key.participant_id, key.session_id))
         out.append(SessionInputs(
             key=key,
             cohort=str(roster[key.participant_id]),
             duration_s=int(row.duration_s),
-            codes=codes.sort_values("second").reset_index(drop=True),
+            codes=codes.reset_index(drop=True),
             coder=coder,
             sync_pairs=(pairs[["video_s", "sensor_s"]].to_numpy(dtype=float)
                         if pairs is not None else np.empty((0, 2))),
@@ -308,6 +324,15 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
             platform_groups=study.platform_groups,
         ))
     return out, notes
+
+
+def _distinct(values: pd.Series) -> list:
+    """The distinct values of a column (by its codes, when it is categorical)."""
+    if isinstance(values.dtype, pd.CategoricalDtype):
+        seen = np.flatnonzero(np.bincount(values.cat.codes.to_numpy() + 1,
+                                          minlength=len(values.cat.categories) + 1)[1:])
+        return list(values.cat.categories[seen])
+    return list(values.unique())
 
 
 def _cache_key(inputs: SessionInputs, cfg: Config,

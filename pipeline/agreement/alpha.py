@@ -110,6 +110,39 @@ ALPHA_METHODS = {
 }
 
 
+def counts_from_positions(positions: np.ndarray, k: int) -> np.ndarray:
+    """Units-by-categories count matrix from a units-by-coders array of category
+    positions 0..k-1 (-1 where a coder did not code the unit): the integer form of
+    :func:`value_counts_by_unit`, for callers that hold their labels as positions."""
+    positions = np.asarray(positions, dtype=np.int64)
+    n_units = positions.shape[0]
+    unit = np.broadcast_to(np.arange(n_units, dtype=np.int64)[:, None], positions.shape)
+    coded = positions >= 0
+    flat = np.bincount(unit[coded] * k + positions[coded], minlength=n_units * k)
+    return flat.reshape(n_units, k)
+
+
+def pooled_alpha_from_coincidences(parts: list[tuple[list[str], np.ndarray]]) -> float:
+    """Nominal alpha of several groups of units pooled, from each group's categories
+    and coincidence matrix over them (as :func:`coincidence_matrix` gives it): the
+    matrices are summed over the union of the categories. NaN for no groups.
+
+    References
+    ----------
+    Krippendorff, K. (2011). Computing Krippendorff's alpha-reliability. Annenberg
+    School for Communication, University of Pennsylvania (working paper).
+    """
+    if not parts:
+        return float("nan")
+    categories = sorted({c for cats, _ in parts for c in cats})
+    index = {c: i for i, c in enumerate(categories)}
+    total = np.zeros((len(categories), len(categories)))
+    for cats, o in parts:
+        at = np.array([index[c] for c in cats], dtype=np.int64)
+        total[np.ix_(at, at)] += o
+    return alpha_from_coincidences(total)
+
+
 def pooled_alpha_nominal(tables: list[pd.DataFrame]) -> float:
     """Nominal alpha over the units of several units-by-coders label tables pooled,
     without stacking them: their coincidence matrices are summed (one table's counts in

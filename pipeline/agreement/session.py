@@ -27,7 +27,8 @@ from itertools import combinations
 import numpy as np
 import pandas as pd
 
-from pipeline.agreement.alpha import krippendorff_alpha_nominal, value_counts_by_unit
+from pipeline.agreement.alpha import (coincidence_matrix, counts_from_positions,
+                                      krippendorff_alpha_nominal, value_counts_by_unit)
 from pipeline.agreement.events import compare_switches
 from pipeline.agreement.kappa import (
     contingency_table_of_codes,
@@ -86,8 +87,12 @@ class SessionAgreement:
     coders: list[str]
     pairs: list[PairAgreement] = field(default_factory=list)
     alpha: dict | None = None     # one row of alpha.csv, for sessions with >= 3 coders
-    labels: pd.DataFrame | None = None  # seconds x coders attended labels (for pooling)
+    labels: pd.DataFrame | None = None  # seconds x coders attended labels
     state_labels: pd.DataFrame | None = None
+    #: (categories, coincidence matrix) of the attended labels and of the states, which
+    #: the study's pooled alpha sums over sessions
+    attended_coincidences: tuple[list[str], np.ndarray] | None = None
+    state_coincidences: tuple[list[str], np.ndarray] | None = None
 
 
 @dataclass(frozen=True)
@@ -306,7 +311,12 @@ def session_agreement(key: SessionKey, codes: pd.DataFrame, duration_s: int,
         result.pairs.append(compare_pair(key, coder_a, coder_b, per_coder[i], per_coder[j],
                                          cfg, switching, dwell))
 
-    # the pooled alpha reads the labels as text: NaN / None where a coder did not code
+    # the study's pooled alpha adds up the sessions' coincidences
+    result.attended_coincidences = (
+        label_names, coincidence_matrix(counts_from_positions(label, len(label_names))))
+    result.state_coincidences = (
+        list(STATES), coincidence_matrix(counts_from_positions(state, len(STATES))))
+    # the labels as text: NaN / None where a coder did not code
     result.labels = _by_coder(np.array(label_names + [np.nan], dtype=object)[label], coders)
     result.state_labels = _by_coder(np.array(list(STATES) + [None], dtype=object)[state],
                                     coders)

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from pipeline.agreement.alpha import pooled_alpha_nominal
+from pipeline.agreement.alpha import pooled_alpha_from_coincidences
 from pipeline.agreement.kappa import kappa, landis_koch_band, observed_agreement
 from pipeline.agreement.session import (
     ALPHA_COLUMNS,
@@ -65,9 +65,10 @@ def pooled_summary(results: list[SessionAgreement], tolerance_s: int,
     n_a, n_b = int(rows["switches_a"].sum()), int(rows["switches_b"].sum())
     m = int(rows["switches_matched"].sum())
 
-    att = [r.labels for r in results if r.labels is not None]
-    st = [r.state_labels for r in results if r.state_labels is not None]
-    alpha_att, alpha_st = pooled_alpha_nominal(att), pooled_alpha_nominal(st)
+    att = [r.attended_coincidences for r in results if r.attended_coincidences is not None]
+    st = [r.state_coincidences for r in results if r.state_coincidences is not None]
+    alpha_att = pooled_alpha_from_coincidences(att)
+    alpha_st = pooled_alpha_from_coincidences(st)
     kappas = rows["kappa_attended"].astype(float)
     coders = sorted({c for r in results if r.pairs for c in r.coders})
     return {

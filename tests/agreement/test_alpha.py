@@ -10,6 +10,8 @@ import pytest
 from pipeline.agreement.alpha import (
     alpha,
     coincidence_matrix,
+    counts_from_positions,
+    pooled_alpha_from_coincidences,
     pooled_alpha_nominal,
     value_counts_by_unit,
 )
@@ -131,3 +133,28 @@ def test_pooled_alpha_splits_the_2011_example_without_changing_it():
     assert pooled_alpha_nominal(parts) == pytest.approx(alpha(units), abs=1e-12)
     assert round(pooled_alpha_nominal(parts), 3) == 0.743
     assert np.isnan(pooled_alpha_nominal([]))
+
+
+def test_pooled_alpha_from_per_part_coincidences_over_their_own_categories():
+    # The same split of Krippendorff's (2011) example, each part summarised by the
+    # coincidence matrix over only the values it holds (as each session's agreement
+    # result carries it): summed over the union of values, alpha is still 0.743.
+    units = _as_units_by_coders(K2011)
+    parts = [units.iloc[:5], units.iloc[5:9], units.iloc[9:].drop(columns=[0])]
+    summaries = []
+    for part in parts:
+        counts, cats = value_counts_by_unit(part)
+        summaries.append((cats, coincidence_matrix(counts)))
+    assert [len(c) for c, _ in summaries] == [3, 4, 3]  # each part has its own values
+    assert pooled_alpha_from_coincidences(summaries) == pytest.approx(alpha(units), abs=1e-12)
+    assert round(pooled_alpha_from_coincidences(summaries), 3) == 0.743
+    assert np.isnan(pooled_alpha_from_coincidences([]))
+
+
+def test_counts_from_positions_matches_counts_from_labels():
+    # the integer form gives the same units-by-categories counts as the text form
+    units = _as_units_by_coders(K2011)
+    counts, cats = value_counts_by_unit(units)
+    index = {c: i for i, c in enumerate(cats)}
+    positions = units.apply(lambda col: col.map(lambda v: -1 if pd.isna(v) else index[str(v)]))
+    np.testing.assert_array_equal(counts_from_positions(positions.to_numpy(), len(cats)), counts)

@@ -258,29 +258,36 @@ def switch_locked_summary(per_session: pd.DataFrame, roster: pd.DataFrame, *,
     for col in ("switch_ci_low", "switch_ci_high", "baseline_ci_low", "baseline_ci_high"):
         part[col] = np.nan
 
-    def mean_ci(values: pd.Series) -> tuple[float, float, float, int]:
-        v = values.dropna().to_numpy(float)
+    t_crit: dict[int, float] = {}  # Student-t quantile by degrees of freedom
+
+    def mean_ci(values: np.ndarray) -> tuple[float, float, float, int]:
+        v = values[np.isfinite(values)]
         n = len(v)
         if n == 0:
             return np.nan, np.nan, np.nan, 0
         if n < 2:
             return float(v.mean()), np.nan, np.nan, n
-        half = stats.t.ppf(0.5 + confidence / 2, n - 1) * v.std(ddof=1) / np.sqrt(n)
+        if n - 1 not in t_crit:
+            t_crit[n - 1] = stats.t.ppf(0.5 + confidence / 2, n - 1)
+        half = t_crit[n - 1] * v.std(ddof=1) / np.sqrt(n)
         return float(v.mean()), float(v.mean() - half), float(v.mean() + half), n
 
     crit_rows = []
-    for (cohort, lag), g in part.groupby(["cohort", "lag_s"]):
-        sw, sw_lo, sw_hi, _ = mean_ci(g["arousal_switch_z"])
-        ps, ps_lo, ps_hi, _ = mean_ci(g["arousal_pseudo_z"])
-        df_, df_lo, df_hi, n = mean_ci(g["arousal_difference_z"])
+    values = {col: part[col].to_numpy(float) for col in
+              ("arousal_switch_z", "arousal_pseudo_z", "arousal_difference_z",
+               "n_switches", "n_switch_values", "n_pseudo_values")}
+    for (cohort, lag), rows_at in sorted(part.groupby(["cohort", "lag_s"]).indices.items()):
+        sw, sw_lo, sw_hi, _ = mean_ci(values["arousal_switch_z"][rows_at])
+        ps, ps_lo, ps_hi, _ = mean_ci(values["arousal_pseudo_z"][rows_at])
+        df_, df_lo, df_hi, n = mean_ci(values["arousal_difference_z"][rows_at])
         crit_rows.append({
             "level": "cohort", "participant_id": pd.NA, "cohort": cohort, "lag_s": lag,
             "arousal_switch_z": sw, "arousal_pseudo_z": ps, "arousal_difference_z": df_,
             "switch_ci_low": sw_lo, "switch_ci_high": sw_hi, "baseline_ci_low": ps_lo,
             "baseline_ci_high": ps_hi, "difference_ci_low": df_lo, "difference_ci_high": df_hi,
-            "n_participants": n, "n_switches": int(g["n_switches"].sum()),
-            "n_switch_values": int(g["n_switch_values"].sum()),
-            "n_pseudo_values": int(g["n_pseudo_values"].sum())})
+            "n_participants": n, "n_switches": int(values["n_switches"][rows_at].sum()),
+            "n_switch_values": int(values["n_switch_values"][rows_at].sum()),
+            "n_pseudo_values": int(values["n_pseudo_values"][rows_at].sum())})
     cohort_traj = pd.DataFrame(crit_rows, columns=TRAJECTORY_COLUMNS)
     trajectories = pd.concat([part[TRAJECTORY_COLUMNS], cohort_traj], ignore_index=True)
 

@@ -288,11 +288,7 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
         # rows, which is cut as a view; otherwise the rows are gathered
         run_of_rows = len(rows) > 0 and rows[-1] - rows[0] + 1 == len(rows)
         pick = slice(rows[0], rows[-1] + 1) if run_of_rows else rows
-
-        def take(frame, pick=pick):
-            return frame.iloc[pick]
-
-        session_coders = take(coder_col)
+        session_coders = coder_col.iloc[pick]
         coders = sorted(str(c) for c in _distinct(session_coders))
         coder = ""
         if coders:
@@ -305,8 +301,8 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
         # the code columns stay categorical, as ingest made them (compact to ship to
         # workers; the stages take either dtype)
         if all_coders is not None and len(rows):
-            all_coders[len(out)] = take(coded)
-        codes = take(codes_only)
+            all_coders[len(out)] = coded.iloc[pick]
+        codes = codes_only.iloc[pick]
         if len(coders) > 1:
             codes = codes[(session_coders == coder).to_numpy()]
         if not codes["second"].is_monotonic_increasing:

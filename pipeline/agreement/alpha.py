@@ -35,12 +35,12 @@ def value_counts_by_unit(codes: pd.DataFrame, categories: list[str] | None = Non
     index = {c: i for i, c in enumerate(categories)}
     k = len(categories)
     labelled = cell >= 0
-    c = np.array([index.get(t, -1) for t in texts], dtype=np.int64)[cell[labelled]]
-    if (c < 0).any():
+    position = np.full(cell.shape, -1, dtype=np.int64)
+    position[labelled] = np.array([index.get(t, -1) for t in texts],
+                                  dtype=np.int64)[cell[labelled]]
+    if (position[labelled] < 0).any():
         raise ValueError("a label is missing from the category list")
-    u = np.repeat(np.arange(n_units, dtype=np.int64), n_coders)[labelled]  # cells by row
-    flat = np.bincount(u * k + c, minlength=n_units * k)
-    return flat.reshape(n_units, k), categories
+    return counts_from_positions(position.reshape(n_units, n_coders), k), categories
 
 
 def coincidence_matrix(counts: np.ndarray) -> np.ndarray:
@@ -147,17 +147,11 @@ def pooled_alpha_nominal(tables: list[pd.DataFrame]) -> float:
     """Nominal alpha over the units of several units-by-coders label tables pooled,
     without stacking them: their coincidence matrices are summed (one table's counts in
     memory at a time). NaN for no tables."""
-    if not tables:
-        return float("nan")
-    seen: set[str] = set()
+    parts = []
     for t in tables:
-        seen.update(str(v) for v in pd.unique(t.to_numpy(dtype=object).ravel())
-                    if not pd.isna(v))
-    categories = sorted(seen)
-    total = np.zeros((len(categories), len(categories)))
-    for t in tables:
-        total += coincidence_matrix(value_counts_by_unit(t, categories)[0])
-    return alpha_from_coincidences(total)
+        counts, categories = value_counts_by_unit(t)
+        parts.append((categories, coincidence_matrix(counts)))
+    return pooled_alpha_from_coincidences(parts)
 
 
 def alpha(codes: pd.DataFrame, level: str = "nominal") -> float:

@@ -39,8 +39,8 @@ def _fit_gee(counts: np.ndarray, exposure_hours: np.ndarray, X: pd.DataFrame,
         warnings.simplefilter("always")
         try:
             model = GEE(counts, X.astype(float), groups=groups,
-                           offset=np.log(exposure_hours), family=family,
-                           cov_struct=Exchangeable())
+                        offset=np.log(exposure_hours), family=family,
+                        cov_struct=Exchangeable())
             res = model.fit(cov_type=cov_type)
         except (np.linalg.LinAlgError, ValueError, FloatingPointError) as err:
             return FitResult(_empty_terms(names), {}, converged=False, fitted=False,

@@ -5,7 +5,8 @@ The data flow is one way::
     ingest.load_study(target)            -> Study
     ingest.read_recording(path, cfg)     -> Recording          (runner does the I/O)
     signals.process_recording(rec, cfg)  -> SessionSignals     (sensor clock)
-    align.build_timeline(inputs, sig, cfg) -> per-second timeline DataFrame (video clock)
+    align.align_signals(key, duration, sync, sig, cfg) -> per-second signal columns
+    align.join_codes(inputs, columns)    -> per-second timeline DataFrame (video clock)
     metrics.arousal.add_arousal(timelines of one participant) -> same, with `arousal`
     metrics.session_metrics(timeline, inputs, cfg) -> SessionMetrics
     models.compare(tables, cfg)          -> comparisons DataFrame
@@ -106,6 +107,17 @@ class Study:
         m = self.media_log
         rows = (m["participant_id"] == key.participant_id) & (m["session_id"] == key.session_id)
         return sorted(str(c) for c in m.loc[rows, "coder"].unique())
+
+
+@dataclass
+class RecordingInputs:
+    """What one session's signal work needs: no media codes, so the runner builds it
+    (and starts that work) before the media log is read."""
+
+    key: SessionKey
+    duration_s: int
+    sync_pairs: np.ndarray  # shape (n, 2): video_s, sensor_s
+    recording_path: Path | None
 
 
 @dataclass

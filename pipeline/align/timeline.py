@@ -16,7 +16,7 @@ from pipeline.align.clock import ClockMap, fit_clock_map
 from pipeline.config import SignalSettings
 from pipeline.errors import StageError
 from pipeline.metrics.states import classify_states
-from pipeline.types import SessionInputs, SessionSignals
+from pipeline.types import SessionInputs, SessionKey, SessionSignals
 
 #: Sample-level columns averaged into each second, with the validity column they obey.
 _MEANS = {
@@ -26,6 +26,16 @@ _MEANS = {
     "hr_bpm": "hr_valid",
     "motion_g": None,
 }
+
+
+@dataclass
+class AlignedSignals:
+    """The recording half of a session's timeline: what needs no media codes."""
+
+    columns: pd.DataFrame  # per video second: sensor_s, then the signal columns
+    scrs: pd.DataFrame  # SCRs on the video clock (onset_video_s ...), inside the session
+    clock: ClockMap
+    flags: list[str] = field(default_factory=list)
 
 
 @dataclass
@@ -99,9 +109,71 @@ _SCR_VIDEO_COLUMNS = ["onset_video_s", "peak_video_s", "amplitude_us", "rise_tim
                       "half_recovery_s"]
 
 
+def align_signals(key: SessionKey, duration_s: int, sync_pairs: np.ndarray,
+                  signals: SessionSignals | None, cfg: SignalSettings) -> AlignedSignals:
+    """Put one session's processed recording on the video clock, second by second.
+
+    This half of the alignment needs no media codes, so it runs (and is cached) before
+    the media log is read, and a changed media log does not invalidate it.
+
+    Parameters
+    ----------
+    key : SessionKey
+        The session (named in errors).
+    duration_s : int
+        The session's length in video seconds (one row per second 0 .. duration_s-1).
+    sync_pairs : numpy.ndarray
+        Shape (n, 2): video_s, sensor_s of the session's sync events.
+    signals : SessionSignals or None
+        The processed recording on the sensor clock; None when the session has none.
+    cfg : SignalSettings
+        Uses ``eda.min_valid_share``: a second is valid when at least that share of
+        the samples expected in it (the sampling rate) is valid.
+    """
+    clock = fit_clock_map(sync_pairs)
+    if clock.rate <= 0:
+        raise StageError("the sync pairs give a sensor clock that runs backwards",
+                         unit=key.label(), stage="align",
+                         hint="check video_s and sensor_s of this session in sync.csv")
+    n = duration_s
+    columns: dict = {"sensor_s": clock.to_sensor(np.arange(n, dtype=float))}
+    flags = list(clock.flags())
+    if signals is None:
+        for col in _MEANS:
+            columns[col] = np.full(n, np.nan)
+        columns["scr_onsets"] = np.zeros(n, dtype=np.int64)
+        columns["scr_amplitude_sum_us"] = np.zeros(n)
+        columns["signal_valid"] = np.zeros(n, dtype=bool)
+        columns["hr_valid"] = np.zeros(n, dtype=bool)
+        scrs_video = pd.DataFrame(columns=_SCR_VIDEO_COLUMNS)
+        flags.append("no_recording")
+    else:
+        signal_columns, scrs_video, any_inside = _signal_columns(signals, clock, n, cfg)
+        columns.update(signal_columns)
+        if not any_inside:
+            flags.append("recording_outside_session")
+    return AlignedSignals(columns=pd.DataFrame(columns), scrs=scrs_video, clock=clock,
+                          flags=flags)
+
+
+def join_codes(inputs: SessionInputs, seconds: pd.DataFrame) -> pd.DataFrame:
+    """The session's timeline: its IDs, its media codes and state per second, then the
+    signal columns ``seconds`` (:attr:`AlignedSignals.columns`), in the order of
+    :data:`~pipeline.types.TIMELINE_COLUMNS` (``arousal`` NaN until the metrics stage
+    fills it)."""
+    key = inputs.key
+    columns: dict = {"participant_id": key.participant_id, "session_id": key.session_id}
+    columns.update(_codes_columns(inputs))
+    for col in seconds.columns:
+        columns[col] = seconds[col].to_numpy()
+    columns["arousal"] = np.nan
+    return pd.DataFrame(columns)
+
+
 def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
                    cfg: SignalSettings) -> AlignedSession:
-    """Join one session's codes and processed signals, second by second.
+    """Join one session's codes and processed signals, second by second
+    (:func:`align_signals`, then :func:`join_codes`).
 
     Parameters
     ----------
@@ -110,38 +182,11 @@ def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
     signals : SessionSignals or None
         The processed recording on the sensor clock; None when the session has none.
     cfg : SignalSettings
-        Uses ``eda.min_valid_share``: a second is valid when at least that share of
-        the samples expected in it (the sampling rate) is valid.
+        Passed to :func:`align_signals`.
     """
-    key = inputs.key
-    clock = fit_clock_map(inputs.sync_pairs)
-    if clock.rate <= 0:
-        raise StageError("the sync pairs give a sensor clock that runs backwards",
-                         unit=key.label(), stage="align",
-                         hint="check video_s and sensor_s of this session in sync.csv")
-    n = inputs.duration_s
-    # the columns in the timeline's order, made into one frame at the end
-    columns: dict = {"participant_id": key.participant_id, "session_id": key.session_id}
-    columns.update(_codes_columns(inputs))
-    columns["sensor_s"] = clock.to_sensor(columns["second"].astype(float))
-    flags = list(clock.flags())
-    if signals is None:
-        for col in _MEANS:
-            columns[col] = np.nan
-        columns["scr_onsets"] = 0
-        columns["scr_amplitude_sum_us"] = 0.0
-        columns["signal_valid"] = False
-        columns["hr_valid"] = False
-        scrs_video = pd.DataFrame(columns=_SCR_VIDEO_COLUMNS)
-        flags.append("no_recording")
-    else:
-        signal_columns, scrs_video, any_inside = _signal_columns(signals, clock, n, cfg)
-        columns.update(signal_columns)
-        if not any_inside:
-            flags.append("recording_outside_session")
-    columns["arousal"] = np.nan
-    timeline = pd.DataFrame(columns)
-    return AlignedSession(timeline=timeline, scrs=scrs_video, clock=clock, flags=flags)
+    aligned = align_signals(inputs.key, inputs.duration_s, inputs.sync_pairs, signals, cfg)
+    return AlignedSession(timeline=join_codes(inputs, aligned.columns), scrs=aligned.scrs,
+                          clock=aligned.clock, flags=aligned.flags)
 
 
 def _signal_columns(signals: SessionSignals, clock: ClockMap, n: int, cfg: SignalSettings

@@ -15,6 +15,7 @@ The modules, one per file of the study folder: :mod:`.csvfile` (robust CSV readi
 from __future__ import annotations
 
 import difflib
+from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
@@ -30,7 +31,8 @@ from pipeline.ingest.media_log import read_media_log
 from pipeline.ingest.signal_files import find_signal_files, read_recording_checked
 from pipeline.types import SessionKey, Study
 
-__all__ = ["load_study", "read_recording_checked"]
+__all__ = ["load_study", "read_study_head", "read_study_rest", "StudyHead",
+           "read_recording_checked"]
 
 
 def _read(path: Path, label: str, required: list[str], problems: ProblemCollector,
@@ -48,8 +50,42 @@ def _vocabulary(cfg: Config) -> dict[str, str] | None:
     return dict(cfg.platforms.groups)
 
 
+@dataclass
+class StudyHead:
+    """What a run needs before the media log: roster, sessions, sync and recordings.
+
+    The runner starts the signal work of every session from this (the recordings do
+    not depend on the media codes) and reads the media log meanwhile
+    (:func:`read_study_rest`). Problems found in sync.csv are held, not raised, so that
+    they are listed together with the media log's.
+    """
+
+    folder: Path
+    roster: pd.DataFrame
+    sessions: pd.DataFrame
+    sync: pd.DataFrame
+    recordings: dict[SessionKey, Path]
+    #: roster.csv and sessions.csv
+    inputs: list[Path]
+    #: warnings of roster.csv and sessions.csv
+    warnings: list[str]
+    sync_warnings: list[str]
+    recording_warnings: list[str]
+    sync_problems: ProblemCollector
+
+    @property
+    def ok(self) -> bool:
+        """True when nothing read so far has a problem."""
+        return not self.sync_problems
+
+    def session_keys(self) -> list[SessionKey]:
+        return [SessionKey(p, s) for p, s in
+                self.sessions[["participant_id", "session_id"]].itertuples(index=False)]
+
+
 def load_study(folder: Path, cfg: Config) -> Study:
-    """Read and check the study folder ``folder`` with the resolved configuration.
+    """Read and check the study folder ``folder`` with the resolved configuration
+    (:func:`read_study_head`, then :func:`read_study_rest`).
 
     Parameters
     ----------
@@ -68,6 +104,12 @@ def load_study(folder: Path, cfg: Config) -> Study:
     InputError
         All problems found, each naming file, line, column and value.
     """
+    return read_study_rest(read_study_head(folder, cfg), cfg)
+
+
+def read_study_head(folder: Path, cfg: Config) -> StudyHead:
+    """Read and check roster.csv and sessions.csv (raising their problems), sync.csv
+    (holding its problems) and find each session's recording."""
     folder = Path(folder)
     warnings: list[str] = []
     problems = ProblemCollector()
@@ -98,24 +140,47 @@ def load_study(folder: Path, cfg: Config) -> Study:
     if roster is None or sessions is None:  # unreachable: a missing table is a problem above
         raise InputError("roster.csv", "could not be read")
 
+    sync = sync_file.empty_sync()
+    sync_warnings: list[str] = []
+    sync_problems = ProblemCollector()
+    if not (folder / "sync.csv").is_file():
+        sync_warnings.append("sync.csv: not given; every session is aligned at zero (video "
+                             "second 0 = sensor second 0) and flagged in QC")
+    else:
+        table = _read(folder / "sync.csv", "sync.csv", sync_file.REQUIRED, sync_problems,
+                      allow_no_rows=True)
+        if table is not None:
+            sync = sync_file.validate_sync(table, sessions, sync_problems)
+            if not len(table):
+                sync_warnings.append("sync.csv: has no rows; every session is aligned at "
+                                     "zero and flagged in QC")
+    keys = [SessionKey(p, s) for p, s in
+            sessions[["participant_id", "session_id"]].itertuples(index=False)]
+    recording_warnings: list[str] = []
+    recordings = find_signal_files(folder, keys, recording_warnings)
+    return StudyHead(folder=folder, roster=roster, sessions=sessions, sync=sync,
+                     recordings=recordings, inputs=inputs, warnings=warnings,
+                     sync_warnings=sync_warnings, recording_warnings=recording_warnings,
+                     sync_problems=sync_problems)
+
+
+def read_study_rest(head: StudyHead, cfg: Config) -> Study:
+    """Read and check the media log and survey.csv; raise every problem found in them
+    and in sync.csv together; return the whole :class:`Study`."""
+    folder, roster, sessions, sync = head.folder, head.roster, head.sessions, head.sync
+    warnings = list(head.warnings)
+    problems = ProblemCollector()
+    inputs = list(head.inputs)
+
     declared = _vocabulary(cfg)
     media_log, seen, log_files = read_media_log(
         folder, sessions, set(declared) if declared is not None else None, problems, warnings)
     inputs.extend(log_files)
-
-    sync = sync_file.empty_sync()
-    if not (folder / "sync.csv").is_file():
-        warnings.append("sync.csv: not given; every session is aligned at zero (video second 0 "
-                        "= sensor second 0) and flagged in QC")
-    else:
+    if (folder / "sync.csv").is_file():
         inputs.append(folder / "sync.csv")
-        table = _read(folder / "sync.csv", "sync.csv", sync_file.REQUIRED, problems,
-                      allow_no_rows=True)
-        if table is not None:
-            sync = sync_file.validate_sync(table, sessions, problems)
-            if not len(table):
-                warnings.append("sync.csv: has no rows; every session is aligned at zero and "
-                                "flagged in QC")
+    problems.extend(head.sync_problems.problems)
+    warnings.extend(head.sync_warnings)
+
     survey = None
     if (folder / "survey.csv").is_file():
         inputs.append(folder / "survey.csv")
@@ -144,10 +209,9 @@ def load_study(folder: Path, cfg: Config) -> Study:
                         + f" (coders in the media log: {', '.join(repr(c) for c in coders)}); "
                         "the first coder in sorted order is used")
 
-    keys = [SessionKey(p, s) for p, s in
-            sessions[["participant_id", "session_id"]].itertuples(index=False)]
-    recordings = find_signal_files(folder, keys, warnings)
-    inputs.extend(recordings[k] for k in keys if k in recordings)
+    recordings = head.recordings
+    warnings.extend(head.recording_warnings)
+    inputs.extend(recordings[k] for k in head.session_keys() if k in recordings)
     _coverage_warnings(roster, sessions, media_log, sync, warnings)
     return Study(root=folder, roster=roster, sessions=sessions, media_log=media_log,
                  sync=sync, survey=survey, recordings=recordings,

@@ -8,11 +8,12 @@ stops the others.
 
 from __future__ import annotations
 
+import importlib
 import os
 import traceback
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from dataclasses import dataclass
-from typing import Any, Callable, Iterator, Sequence
+from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from pipeline.errors import ConfigError, ScreenweaveError
 
@@ -96,10 +97,13 @@ def return_freed_memory() -> None:
         pass
 
 
-def _start_worker() -> None:
-    """Set-up of each local worker process."""
+def _start_worker(preload: Sequence[str] = ()) -> None:
+    """Set-up of each local worker process: memory and thread settings, then the
+    modules its tasks will need."""
     keep_freed_memory()
     _limit_threads()
+    for name in preload:
+        importlib.import_module(name)
 
 
 def _limit_threads() -> None:
@@ -127,17 +131,23 @@ def _limit_threads() -> None:
 class TaskPool:
     """Where a run's per-session tasks execute: in this process, a local process pool
     or a Dask cluster. One pool serves every phase of a run, so worker processes are
-    started (and import the package) once.
+    started (and import the package) once, and the Dask client connects once.
 
-    Use as a context manager; :meth:`map` yields ``(index, Outcome)`` for each task as
-    it finishes. Local worker processes are started by :meth:`start`, which a run calls
-    before it reads the study, so that the forked workers do not inherit (and count in
-    their resident memory) the study's tables.
+    Use as a context manager. :meth:`start_task` queues a task and gives a future;
+    :meth:`next_done` waits until some of them have finished; each future's
+    ``.result()`` is an :class:`Outcome`. :meth:`map` runs one function over many
+    arguments with a bounded number in flight. Local worker processes are started by
+    :meth:`start`, which a run calls before it reads the study, so that the forked
+    workers do not inherit (and count in their resident memory) the study's tables;
+    ``preload`` names modules each worker imports as it starts (in parallel with the
+    runner's own work).
     """
 
-    def __init__(self, workers: int = 1, cluster: str | None = None):
-        self.workers, self.cluster = workers, cluster
+    def __init__(self, workers: int = 1, cluster: str | None = None,
+                 preload: Sequence[str] = ()):
+        self.workers, self.cluster, self.preload = workers, cluster, tuple(preload)
         self._pool: ProcessPoolExecutor | None = None
+        self._client = None
 
     @property
     def local_files(self) -> bool:
@@ -150,18 +160,25 @@ class TaskPool:
         return not self.cluster and self.workers <= 1
 
     def start(self) -> "TaskPool":
-        if not self.cluster and self.workers > 1 and self._pool is None:
+        if self.cluster and self._client is None:
+            self._client = _dask_client(self.cluster)
+        elif not self.cluster and self.workers > 1 and self._pool is None:
             self._pool = ProcessPoolExecutor(max_workers=self.workers,
-                                             initializer=_start_worker)
-            # start every worker now (the pool forks lazily otherwise)
-            for fut in [self._pool.submit(_ready) for _ in range(self.workers)]:
-                fut.result()
+                                             initializer=_start_worker,
+                                             initargs=(self.preload,))
+            # start every worker now (the pool forks lazily otherwise); they import
+            # the preloaded modules while the caller goes on
+            for _ in range(self.workers):
+                self._pool.submit(_ready)
         return self
 
     def close(self) -> None:
         if self._pool is not None:
-            self._pool.shutdown()
+            self._pool.shutdown(cancel_futures=True)
             self._pool = None
+        if self._client is not None:
+            self._client.close()
+            self._client = None
 
     def __enter__(self) -> "TaskPool":
         return self.start()
@@ -169,10 +186,51 @@ class TaskPool:
     def __exit__(self, *exc) -> None:
         self.close()
 
+    @property
+    def capacity(self) -> int:
+        """How many tasks run at once."""
+        if self._client is not None:
+            return max(1, len(self._client.scheduler_info().get("workers", {})))
+        return max(1, self.workers)
+
+    def start_task(self, fn: Callable, arg: Any):
+        """Queue one per-session task; return its future (``.result()`` is an Outcome).
+
+        Local pool: a worker runs it. Cluster: a Dask worker does. Serial runs: it runs
+        in this process when :meth:`next_done` reaches it (tasks run in the order
+        they were queued)."""
+        self.start()
+        if self._client is not None:
+            return self._client.submit(_call, fn, arg, pure=False)
+        if self._pool is not None:
+            return self._pool.submit(_call, fn, arg)
+        return _Deferred(fn, arg)
+
+    def next_done(self, futures: Iterable) -> list:
+        """Wait until at least one of ``futures`` has finished; return those that have."""
+        futures = list(futures)
+        if self._client is not None:
+            from distributed import wait as dask_wait
+
+            return list(dask_wait(futures, return_when="FIRST_COMPLETED").done)
+        if self._pool is not None:
+            return list(wait(futures, return_when=FIRST_COMPLETED)[0])
+        done = [f for f in futures if f.finished]
+        if not done:  # serial: run the first task queued that has not run
+            first = min(futures, key=lambda f: f.order)
+            first.run()
+            done = [first]
+        return done
+
+    def cancel(self, futures: Iterable) -> None:
+        """Drop queued tasks that have not started (running ones finish)."""
+        for fut in futures:
+            fut.cancel()
+
     def submit(self, fn: Callable, arg: Any) -> Future | _Done:
-        """Start one task; ``.result()`` gives its Outcome. On a local pool it runs in
-        a worker while the caller goes on; otherwise (serial runs, and cluster runs,
-        whose group work stays with the runner) it runs here and now."""
+        """Start one task of the group stage; ``.result()`` gives its Outcome. On a
+        local pool it runs in a worker while the caller goes on; otherwise (serial runs,
+        and cluster runs, whose group work stays with the runner) it runs here and now."""
         if self._pool is not None:
             return self._pool.submit(_call, fn, arg)
         return _Done(_call(fn, arg))
@@ -181,44 +239,70 @@ class TaskPool:
             ) -> Iterator[tuple[int, Outcome]]:
         """Yield ``(index, Outcome)`` for each task as it finishes.
 
-        With ``stop_on_error`` no new task is started after the first failure (tasks
+        At most two tasks per worker are in flight, so memory stays bounded. With
+        ``stop_on_error`` no new task is started after the first failure (tasks
         already running finish and are yielded).
         """
-        if self.cluster:
-            yield from _run_dask(fn, args, self.cluster, stop_on_error)
-            return
-        if self.workers <= 1 or len(args) <= 1:
-            for i, arg in enumerate(args):
-                out = _call(fn, arg)
-                yield i, out
-                if stop_on_error and not out.ok:
-                    return
-            return
-        self.start()
-        pending: dict[Future, int] = {}
         queue = iter(enumerate(args))
+        pending: dict = {}
         stopped = False
 
-        def submit_next() -> None:
-            try:
-                i, arg = next(queue)
-            except StopIteration:
+        def start_next() -> None:
+            for i, arg in queue:
+                pending[self.start_task(fn, arg)] = i
                 return
-            pending[self._pool.submit(_call, fn, arg)] = i
 
-        # keep at most 2 tasks per worker in flight so memory stays bounded
-        for _ in range(2 * self.workers):
-            submit_next()
-        while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in done:
-                i = pending.pop(fut)
-                out = fut.result()
-                yield i, out
-                if not out.ok and stop_on_error:
-                    stopped = True
-                if not stopped:
-                    submit_next()
+        try:
+            for _ in range(2 * self.capacity):
+                start_next()
+            while pending:
+                for fut in self.next_done(pending):
+                    i = pending.pop(fut)
+                    out = fut.result()
+                    yield i, out
+                    if not out.ok and stop_on_error:
+                        stopped = True
+                    if not stopped:
+                        start_next()
+                if stopped:  # the tasks not yet started are dropped
+                    self.cancel(pending)
+                    pending = {f: i for f, i in pending.items() if not f.cancelled()}
+        finally:
+            self.cancel(pending)
+
+
+class _Deferred:
+    """A serial run's task: run in this process when the run waits for it."""
+
+    _queued = 0
+
+    def __init__(self, fn: Callable, arg: Any):
+        self.fn, self.arg = fn, arg
+        self.outcome: Outcome | None = None
+        self._cancelled = False
+        _Deferred._queued += 1
+        self.order = _Deferred._queued
+
+    @property
+    def finished(self) -> bool:
+        return self.outcome is not None or self._cancelled
+
+    def run(self) -> None:
+        if not self.finished:
+            self.outcome = _call(self.fn, self.arg)
+            self.fn = self.arg = None  # free the task's data
+
+    def result(self) -> Outcome:
+        self.run()
+        return self.outcome
+
+    def cancel(self) -> bool:
+        if self.outcome is None:
+            self._cancelled = True
+        return self._cancelled
+
+    def cancelled(self) -> bool:
+        return self._cancelled
 
 
 class _Done:
@@ -247,44 +331,15 @@ def run_tasks(fn: Callable, args: Sequence[Any], *, workers: int = 1,
         yield from pool.map(fn, args, stop_on_error=stop_on_error)
 
 
-def _run_dask(fn: Callable, args: Sequence[Any], address: str, stop_on_error: bool
-              ) -> Iterator[tuple[int, Outcome]]:
+def _dask_client(address: str):
+    """A client of the Dask scheduler at ``address`` (ConfigError when unreachable)."""
     try:
-        from distributed import Client, as_completed
+        from distributed import Client
     except ImportError:
         raise ConfigError("--cluster needs the Dask extra",
                           hint="pip install 'screenweave[dask]'") from None
     try:
-        client = Client(address, timeout=f"{DASK_CONNECT_TIMEOUT_S}s")
+        return Client(address, timeout=f"{DASK_CONNECT_TIMEOUT_S}s")
     except (OSError, TimeoutError) as err:
         raise ConfigError(f"cannot reach the Dask scheduler at {address!r} ({err})",
                           hint="give the scheduler address, e.g. tcp://10.0.0.5:8786") from None
-    try:
-        # Like the local pool: a bounded number of tasks in flight per worker, so the
-        # client never holds every session's data at once.
-        n_workers = max(1, len(client.scheduler_info().get("workers", {})))
-        queue = iter(enumerate(args))
-        index: dict = {}
-        running = as_completed()
-
-        def submit_next() -> None:
-            try:
-                i, arg = next(queue)
-            except StopIteration:
-                return
-            fut = client.submit(_call, fn, arg, pure=False)
-            index[fut] = i
-            running.add(fut)
-
-        for _ in range(2 * n_workers):
-            submit_next()
-        for fut in running:
-            out = fut.result()
-            yield index.pop(fut), out
-            if stop_on_error and not out.ok:
-                for other in index:
-                    other.cancel()
-                return
-            submit_next()
-    finally:
-        client.close()

@@ -3,11 +3,16 @@
 Stages themselves compute and never touch files; this module is the only one that
 does I/O for `screenweave run`. The order is:
 
-1. ingest: validate the whole study (refuse early, with every problem listed);
-2. per session (parallel): read recording -> signals -> align, cached on a hash of
-   the session's inputs and the ``[signals]`` settings;
-3. per participant: the mean and SD for the within-participant arousal z-score;
-4. per session (parallel): arousal, media metrics, switch-locked arousal;
+1. ingest, first half: roster, sessions, sync and the recordings (refused early, with
+   every problem listed);
+2. per session (parallel): read recording -> signals -> on the video clock, cached on
+   a hash of the session's recording, sync pairs and the ``[signals]`` settings. This
+   needs no media codes, so it starts at once and the runner reads (and checks) the
+   media log meanwhile;
+3. per participant, as soon as all of its sessions have their signals: the mean and
+   SD for the within-participant arousal z-score;
+4. per session (parallel): the codes joined to the signals, arousal, media metrics,
+   switch-locked arousal and coder agreement;
 5. group: QC, models, survey, then the tables, manifest, charts, report and deck.
 """
 
@@ -29,32 +34,37 @@ import pandas as pd
 from pipeline import __version__
 from pipeline.agreement.session import SessionAgreement, session_agreement
 from pipeline.align.clock import ClockMap
-from pipeline.align.timeline import build_timeline
+from pipeline.align.timeline import align_signals, join_codes
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
 from pipeline.execution import Outcome, TaskPool, keep_freed_memory, return_freed_memory
-from pipeline.ingest import load_study
-from pipeline.ingest import read_recording_checked
+from pipeline.ingest import StudyHead, read_recording_checked, read_study_head, read_study_rest
 from pipeline.metrics.arousal import add_arousal, arousal_source
-from pipeline.metrics.session import session_metrics
-from pipeline.metrics.switch_locked import (session_seed, switch_locked_methods,
-                                            switch_locked_session, switch_locked_summary)
-from pipeline.models import ModelResults, compare, compare_survey, survey_methods
 from pipeline.outputs import (OutputFolder, atomic_write, sha256_file, write_csvs,
                               write_parquet)
-from pipeline.signals import process_recording
-from pipeline.types import SessionInputs, SessionKey, SessionMetrics, Study
+from pipeline.types import (RecordingInputs, SessionInputs, SessionKey, SessionMetrics,
+                            Study)
 
 CACHE_DIR = "cache/prepare"
+
+#: The stage modules that import scipy and statsmodels (about a second on first
+#: import). This module imports them inside the task functions that use them, and
+#: each local worker imports them as it starts: with workers, the runner's process
+#: never needs them (every task that does runs on the pool), and the workers'
+#: imports run while the runner reads the study.
+STAGE_MODULES = ("pipeline.signals", "pipeline.metrics.session",
+                 "pipeline.metrics.switch_locked", "pipeline.models")
 
 
 # ----------------------------------------------------------------- per-session tasks
 @dataclass
 class Prepared:
-    """Phase-1 result of one session: aligned timeline and signal facts."""
+    """Phase-1 result of one session: its recording on the video clock, per second
+    (``seconds``, :attr:`~pipeline.align.timeline.AlignedSignals.columns`), and the
+    signal facts."""
 
     key: SessionKey
-    timeline: pd.DataFrame
+    seconds: pd.DataFrame | None
     scrs: pd.DataFrame
     clock: ClockMap
     flags: list[str]
@@ -63,17 +73,16 @@ class Prepared:
     sampling_rate_hz: float
     channels: list[str]
     notes: list[str]
-    coverage: dict[str, float]
     recording_nbytes: int = 0
 
 
 @dataclass
 class PrepareTask:
     """Phase-1 work of one session. In local runs the worker itself checks and fills
-    the session's cache file (``cache_file``), so hashing inputs, pickling timelines
-    and writing them never queue up in the runner's process."""
+    the session's cache file (``cache_file``), so hashing inputs, pickling the
+    per-second signals and writing them never queue up in the runner's process."""
 
-    inputs: SessionInputs
+    inputs: RecordingInputs
     cfg: Config
     cache_file: Path | None = None
     fresh: bool = False
@@ -81,9 +90,9 @@ class PrepareTask:
 
 @dataclass
 class PrepareOutcome:
-    """What phase 1 hands back: the session's facts (its timeline only when no cache
-    file holds it), the arousal moments for the within-participant z-score, and
-    where the result came from."""
+    """What phase 1 hands back: the session's facts (its per-second signals only when
+    no cache file holds them), the arousal moments for the within-participant z-score,
+    and where the result came from."""
 
     prepared: Prepared
     moments: tuple[int, float, float]
@@ -96,7 +105,10 @@ class PrepareOutcome:
 
 
 def prepare_session(task: PrepareTask) -> Prepared:
-    """Read, process and align one session (pure apart from reading its recording)."""
+    """Read, process and put on the video clock one session's recording (pure apart
+    from reading it)."""
+    from pipeline.signals import process_recording
+
     inputs, cfg = task.inputs, task.cfg
     signals = None
     channels: list[str] = []
@@ -111,11 +123,11 @@ def prepare_session(task: PrepareTask) -> Prepared:
         signals = process_recording(rec, cfg.signals)
         del rec
         notes.extend(signals.notes)
-    aligned = build_timeline(inputs, signals, cfg.signals)
+    aligned = align_signals(inputs.key, inputs.duration_s, inputs.sync_pairs, signals,
+                            cfg.signals)
     return Prepared(
-        coverage=_coverage(aligned.timeline),
         key=inputs.key,
-        timeline=aligned.timeline,
+        seconds=aligned.columns,
         scrs=aligned.scrs,
         clock=aligned.clock,
         flags=aligned.flags,
@@ -160,40 +172,39 @@ def prepare_cached(task: PrepareTask) -> PrepareOutcome:
     from_cache = prep is not None
     if prep is None:
         prep = prepare_session(task)
-    moments = _moments(prep.timeline, task.cfg)
+    moments = _moments(prep.seconds, task.cfg)
     sha = None
     if task.cache_file is not None:
         if not from_cache:
             sha = store_cached(task.cache_file, key, prep)
-        prep.timeline = None  # the file holds it; phase 3 reads it back there
+        prep.seconds = None  # the file holds them; phase 3 reads them back there
     return PrepareOutcome(prepared=prep, moments=moments, cache_key=key,
                           from_cache=from_cache, cache_sha256=sha, recording_sha256=rec_sha)
 
 
 @dataclass
 class FinishTask:
-    """Phase-3 work of one session. The timeline travels in the task (cluster runs) or
-    is re-read from the phase-1 cache file (local runs), so the runner never holds
-    every session's timeline in memory at once; in local runs the worker also writes
-    the finished timeline to ``timeline_file`` itself."""
+    """Phase-3 work of one session. The per-second signals travel in the task (cluster
+    runs) or are re-read from the phase-1 cache file (local runs), so the runner never
+    holds every session's timeline in memory at once; in local runs the worker also
+    writes the finished timeline to ``timeline_file`` itself."""
 
     inputs: SessionInputs
     mean: float
     sd: float
     cfg: Config
-    seed: int
-    timeline: pd.DataFrame | None = None
+    seconds: pd.DataFrame | None = None
     cache_file: Path | None = None
     timeline_file: Path | None = None
     #: every coder's rows of this session (second, in_view, attended, coder) when the
     #: study has double-coded sessions, for the session's coder agreement
     agreement_codes: pd.DataFrame | None = None
 
-    def load_timeline(self) -> pd.DataFrame:
-        if self.timeline is not None:
-            return self.timeline
+    def load_seconds(self) -> pd.DataFrame:
+        if self.seconds is not None:
+            return self.seconds
         with open(self.cache_file, "rb") as fh:
-            return pickle.load(fh)["value"].timeline
+            return pickle.load(fh)["value"].seconds
 
 
 @dataclass
@@ -202,17 +213,24 @@ class Finished:
     timeline: pd.DataFrame | None
     metrics: SessionMetrics
     switch_locked: pd.DataFrame | None
+    coverage: dict[str, float]
     agreement: SessionAgreement | None = None
     timeline_sha256: str | None = None
 
 
 def finish_session(task: FinishTask) -> Finished:
-    """Arousal z-score, media metrics, switch-locked arousal and coder agreement of one
-    session."""
+    """The codes joined to the per-second signals, then arousal z-score, media metrics,
+    switch-locked arousal and coder agreement of one session."""
+    from pipeline.metrics.session import session_metrics
+    from pipeline.metrics.switch_locked import session_seed, switch_locked_session
+
     cfg = task.cfg
-    timeline = add_arousal(task.load_timeline(), task.mean, task.sd, cfg.arousal)
+    timeline = join_codes(task.inputs, task.load_seconds())
+    timeline = add_arousal(timeline, task.mean, task.sd, cfg.arousal)
     metrics = session_metrics(timeline, task.inputs, cfg)
-    locked = switch_locked_session(timeline, metrics.switches, task.seed,
+    locked = switch_locked_session(timeline, metrics.switches,
+                                   session_seed(task.inputs.key.participant_id,
+                                                task.inputs.key.session_id),
                                    window_s=cfg.models.switch_locked_window_s,
                                    n_pseudo=cfg.models.switch_locked_pseudo)
     agreement = None
@@ -221,27 +239,11 @@ def finish_session(task: FinishTask) -> Finished:
                                       task.inputs.duration_s, cfg.agreement, cfg.switching,
                                       cfg.dwell)
     fin = Finished(key=task.inputs.key, timeline=timeline, metrics=metrics,
-                   switch_locked=locked, agreement=agreement)
+                   switch_locked=locked, coverage=_coverage(timeline), agreement=agreement)
     if task.timeline_file is not None:
         fin.timeline_sha256 = write_parquet(task.timeline_file, timeline)
         fin.timeline = None
     return fin
-
-
-class _Lazy:
-    """A sequence whose items are built when asked for (one task's data at a time)."""
-
-    def __init__(self, keys: list[int], make: Callable[[int], object]):
-        self.keys, self.make = keys, make
-
-    def __len__(self) -> int:
-        return len(self.keys)
-
-    def __getitem__(self, j: int):
-        return self.make(self.keys[j])
-
-    def __iter__(self):
-        return (self.make(k) for k in self.keys)
 
 
 # -------------------------------------------------------------------- the whole run
@@ -259,9 +261,11 @@ class RunResult:
         return self.sessions_ok < self.sessions_total
 
 
-def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame] | None = None
+def session_inputs(study: Study, cfg: Config, recordings: list[RecordingInputs],
+                   all_coders: dict[int, pd.DataFrame] | None = None
                    ) -> tuple[list[SessionInputs], list[str]]:
     """Cut each session's inputs out of the study; note which coder each one uses.
+    ``recordings`` are the sessions' :func:`recording_inputs`, in the same order.
 
     When ``all_coders`` is a dict, it is filled with every coder's rows (second,
     in_view, attended, coder) of each session that has media-log rows, by the
@@ -276,11 +280,9 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
     coded = log[["second", "in_view", "attended", "coder"]]
     codes_only = coded[["second", "in_view", "attended"]]
     coder_col = log["coder"]
-    sync = {k: part for k, part in study.sync.groupby(["participant_id", "session_id"],
-                                                      sort=False)}
     out = []
-    for row in study.sessions.itertuples(index=False):
-        key = SessionKey(row.participant_id, row.session_id)
+    for rec in recordings:
+        key = rec.key
         rows = rows_of.get((key.participant_id, key.session_id))
         if rows is None:
             rows = np.empty(0, dtype=np.intp)
@@ -307,19 +309,35 @@ def session_inputs(study: Study, cfg: Config, all_coders: dict[int, pd.DataFrame
             codes = codes[(session_coders == coder).to_numpy()]
         if not codes["second"].is_monotonic_increasing:
             codes = codes.sort_values("second")
-        pairs = sync.get((key.participant_id, key.session_id))
         out.append(SessionInputs(
             key=key,
             cohort=str(roster[key.participant_id]),
-            duration_s=int(row.duration_s),
+            duration_s=rec.duration_s,
             codes=codes.reset_index(drop=True),
             coder=coder,
-            sync_pairs=(pairs[["video_s", "sensor_s"]].to_numpy(dtype=float)
-                        if pairs is not None else np.empty((0, 2))),
-            recording_path=study.recordings.get(key),
+            sync_pairs=rec.sync_pairs,
+            recording_path=rec.recording_path,
             platform_groups=study.platform_groups,
         ))
     return out, notes
+
+
+def recording_inputs(head: StudyHead) -> list[RecordingInputs]:
+    """Each session's recording, duration and sync pairs, in the order of sessions.csv."""
+    sync = {k: part for k, part in head.sync.groupby(["participant_id", "session_id"],
+                                                     sort=False)}
+    out = []
+    for row in head.sessions.itertuples(index=False):
+        key = SessionKey(row.participant_id, row.session_id)
+        pairs = sync.get((key.participant_id, key.session_id))
+        out.append(RecordingInputs(
+            key=key,
+            duration_s=int(row.duration_s),
+            sync_pairs=(pairs[["video_s", "sensor_s"]].to_numpy(dtype=float)
+                        if pairs is not None else np.empty((0, 2))),
+            recording_path=head.recordings.get(key),
+        ))
+    return out
 
 
 def _distinct(values: pd.Series) -> list:
@@ -331,16 +349,16 @@ def _distinct(values: pd.Series) -> list:
     return list(values.unique())
 
 
-def _cache_key(inputs: SessionInputs, cfg: Config,
+def _cache_key(inputs: RecordingInputs, cfg: Config,
                recording_sha256: str | None = None) -> str:
     """Hash of everything phase 1 reads: version, [signals] settings, the session's
-    codes and sync pairs, and its recording's bytes (by their SHA-256)."""
+    duration and sync pairs, and its recording's bytes (by their SHA-256). The media
+    codes are not among them: recoding a session keeps its signals cached."""
     h = hashlib.sha256()
     h.update(__version__.encode())
     h.update(cfg.signals.fingerprint().encode())
     h.update(str(inputs.duration_s).encode())
-    h.update(inputs.sync_pairs.tobytes())
-    h.update(pd.util.hash_pandas_object(inputs.codes, index=False).to_numpy().tobytes())
+    h.update(np.ascontiguousarray(inputs.sync_pairs, dtype=float).tobytes())
     if inputs.recording_path is not None:
         h.update((recording_sha256 or sha256_file(inputs.recording_path)).encode())
     return h.hexdigest()
@@ -361,9 +379,10 @@ def _combine_moments(parts: list[tuple[int, float, float]]) -> tuple[float, floa
     return mean, sd, n
 
 
-def _moments(timeline: pd.DataFrame, cfg: Config) -> tuple[int, float, float]:
-    vals = arousal_source(timeline, cfg.arousal)
-    vals = vals[timeline["signal_valid"].to_numpy(dtype=bool)].to_numpy(dtype=float)
+def _moments(seconds: pd.DataFrame, cfg: Config) -> tuple[int, float, float]:
+    """(n, mean, M2) of the arousal source over one session's valid seconds."""
+    vals = arousal_source(seconds, cfg.arousal)
+    vals = vals[seconds["signal_valid"].to_numpy(dtype=bool)].to_numpy(dtype=float)
     vals = vals[np.isfinite(vals)]
     if len(vals) == 0:
         return 0, 0.0, 0.0
@@ -386,11 +405,10 @@ def _coverage(tl: pd.DataFrame) -> dict[str, float]:
     }
 
 
-def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
-            cfg: Config) -> dict:
-    cov = prep.coverage
+def _qc_row(inp: SessionInputs, prep: Prepared, fin: Finished, cfg: Config) -> dict:
+    cov = fin.coverage
     usable_share = cov["usable_share"]
-    flags = list(prep.flags) + (metrics.flags if metrics else [])
+    flags = list(prep.flags) + fin.metrics.flags
     usable = bool(inp.recording_path is not None and usable_share >= cfg.qc.min_usable_share)
     reason = ""
     if inp.recording_path is None:
@@ -428,17 +446,173 @@ def _qc_row(inp: SessionInputs, prep: Prepared, metrics: SessionMetrics | None,
 class Progress:
     """A tqdm bar over sessions on stderr (quiet when asked)."""
 
-    def __init__(self, total: int, desc: str, quiet: bool):
+    def __init__(self, total: int, desc: str, quiet: bool, position: int = 0):
         from tqdm import tqdm
 
         self.bar = tqdm(total=total, desc=desc, unit="session", disable=quiet,
-                        file=sys.stderr, leave=False)
+                        file=sys.stderr, leave=False, position=position)
 
     def step(self) -> None:
         self.bar.update(1)
 
     def close(self) -> None:
         self.bar.close()
+
+
+class Sessions:
+    """The per-session work of a run as it unfolds on the pool.
+
+    Every session's signal task (phase 1) is queued at once: it needs no media codes,
+    and what it sends and returns is small (its per-second signals go to its cache
+    file). A participant's metrics tasks (phase 3) are queued as soon as all of its
+    sessions have their signals and the media log has been read, so the pool never
+    waits at a barrier between the phases. Results are gathered in ``prepared``,
+    ``finished`` and ``failures`` by session index; without ``keep_going`` the first
+    failure raises :class:`StageError` (call :meth:`close` to drop queued tasks).
+    """
+
+    def __init__(self, pool: TaskPool, recs: list[RecordingInputs], cfg: Config,
+                 outdir: OutputFolder, *, fresh: bool, keep_going: bool, quiet: bool):
+        self.pool, self.recs, self.cfg, self.outdir = pool, recs, cfg, outdir
+        self.fresh, self.keep_going = fresh, keep_going
+        self.cache_file = {i: outdir.path(f"{CACHE_DIR}/{rec.key.stem()}.pkl")
+                           for i, rec in enumerate(recs)}
+        self.pending: dict = {}  # future -> ("signals" | "metrics", session index)
+        self.prepared: dict[int, Prepared] = {}
+        self.moments: dict[int, tuple[int, float, float]] = {}
+        self.finished: dict[int, Finished] = {}
+        self.failures: list[dict] = []
+        self.cached = 0
+        self.input_sha256: dict[Path, str] = {}
+        self.sessions_of: dict[str, list[int]] = {}
+        for i, rec in enumerate(recs):
+            self.sessions_of.setdefault(rec.key.participant_id, []).append(i)
+        self.without_signals = {pid: len(v) for pid, v in self.sessions_of.items()}
+        self.ready: list[str] = []  # participants whose metrics wait for the media log
+        self.inputs: list[SessionInputs] | None = None
+        self.all_coders: dict[int, pd.DataFrame] | None = None
+        self.t0 = time.perf_counter()
+        self.signals_done = self.metrics_done = 0.0
+        self.metrics_start: float | None = None
+        self.bars = (Progress(len(recs), "signals", quiet, 0),
+                     Progress(len(recs), "metrics", quiet, 1))
+
+    # -- queueing
+    def queue_signals(self) -> None:
+        """Queue every session's signal task (cluster runs: those not cached here)."""
+        for i, rec in enumerate(self.recs):
+            if self.pool.local_files:  # the workers check and fill the cache files
+                task = PrepareTask(rec, self.cfg, cache_file=self.cache_file[i],
+                                   fresh=self.fresh)
+            else:  # cluster workers may not see this file system: the cache stays here
+                hit = None if self.fresh else load_cached(self.cache_file[i],
+                                                          _cache_key(rec, self.cfg))
+                if hit is not None:
+                    self.moments[i] = _moments(hit.seconds, self.cfg)
+                    hit.seconds = None
+                    self.prepared[i] = hit
+                    self.cached += 1
+                    self._signals_over(i)
+                    continue
+                task = PrepareTask(rec, self.cfg)
+            self.pending[self.pool.start_task(prepare_cached, task)] = ("signals", i)
+
+    def finish_with(self, inputs: list[SessionInputs],
+                    all_coders: dict[int, pd.DataFrame] | None) -> None:
+        """The media log is read: queue the metrics of every participant ready so far."""
+        self.inputs, self.all_coders = inputs, all_coders
+        ready, self.ready = self.ready, []
+        for pid in ready:
+            self._queue_metrics(pid)
+
+    def _signals_over(self, i: int) -> None:
+        self.bars[0].step()
+        pid = self.recs[i].key.participant_id
+        self.without_signals[pid] -= 1
+        if self.without_signals[pid] == 0:
+            if self.inputs is None:
+                self.ready.append(pid)
+            else:
+                self._queue_metrics(pid)
+
+    def _queue_metrics(self, pid: str) -> None:
+        """Pool the participant's arousal moments (Chan et al. 1979) and queue the
+        metrics task of each of its sessions that has its signals."""
+        done = [i for i in self.sessions_of[pid] if i in self.prepared]
+        mean, sd, _ = _combine_moments([self.moments[i] for i in done])
+        if self.metrics_start is None:
+            self.metrics_start = time.perf_counter()
+        for i in done:
+            inp = self.inputs[i]
+            task = FinishTask(inp, mean, sd, self.cfg, cache_file=self.cache_file[i],
+                              agreement_codes=(self.all_coders.get(i)
+                                               if self.all_coders is not None else None))
+            if self.pool.local_files:
+                task.timeline_file = self.outdir.path(f"timeline/{inp.key.stem()}.parquet")
+            else:  # workers may not see this file system: ship the per-second signals
+                task.seconds = task.load_seconds()
+            self.pending[self.pool.start_task(finish_session, task)] = ("metrics", i)
+
+    # -- gathering
+    def run(self) -> None:
+        """Gather results until every queued task has finished."""
+        while self.pending:
+            for fut in self.pool.next_done(self.pending):
+                kind, i = self.pending.pop(fut)
+                if kind == "signals":
+                    self._signals_in(i, fut.result())
+                else:
+                    self._metrics_in(i, fut.result())
+
+    def _signals_in(self, i: int, outcome: Outcome) -> None:
+        self.signals_done = time.perf_counter() - self.t0
+        if outcome.ok:
+            res: PrepareOutcome = outcome.value
+            self.cached += res.from_cache
+            if res.prepared.seconds is not None:  # cluster run: store them here
+                res.cache_sha256 = store_cached(self.cache_file[i], res.cache_key,
+                                                res.prepared)
+                res.prepared.seconds = None
+            if res.cache_sha256:
+                self.outdir.record(self.cache_file[i], "cache", res.cache_sha256)
+            self.prepared[i] = res.prepared
+            self.moments[i] = res.moments
+            if res.recording_sha256:
+                self.input_sha256[self.recs[i].recording_path] = res.recording_sha256
+        else:
+            self._failed(i, "signals", outcome)
+        self._signals_over(i)
+
+    def _metrics_in(self, i: int, outcome: Outcome) -> None:
+        self.bars[1].step()
+        self.metrics_done = time.perf_counter() - (self.metrics_start or self.t0)
+        if not outcome.ok:
+            self._failed(i, "metrics", outcome)
+            return
+        fin: Finished = outcome.value
+        self.finished[i] = fin
+        rel = f"timeline/{fin.key.stem()}.parquet"
+        if fin.timeline is not None:  # cluster run: write it here
+            self.outdir.parquet(rel, fin.timeline, "align")
+            fin.timeline = None  # free the memory; the file holds it now
+        else:
+            self.outdir.record(self.outdir.path(rel), "align", fin.timeline_sha256)
+
+    def _failed(self, i: int, stage: str, outcome: Outcome) -> None:
+        key = self.recs[i].key
+        self.failures.append({"participant_id": key.participant_id,
+                              "session_id": key.session_id, "stage": stage,
+                              "error": outcome.error, "hint": outcome.hint or ""})
+        if not self.keep_going:
+            raise StageError(outcome.error or "failed", unit=key.label(), stage=stage,
+                             hint=(outcome.hint or "") + "; use --keep-going to run the "
+                             "other sessions and list every failure")
+
+    def close(self) -> None:
+        """Drop the tasks not yet started; close the progress bars."""
+        self.pool.cancel(self.pending)
+        for bar in self.bars:
+            bar.close()
 
 
 def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
@@ -448,9 +622,10 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     """Run the whole pipeline on a study folder or study .toml; write OUT."""
     started = time.perf_counter()
     folder, cfg, cfg_file = resolve_study(target)
-    # Local workers start before the study is read, so they do not inherit its tables;
-    # one pool serves both per-session phases.
-    with TaskPool(workers, cluster) as pool:
+    # Local workers start before the study is read, so they do not inherit its tables,
+    # and import the stage modules while the runner reads it; one pool serves every
+    # phase.
+    with TaskPool(workers, cluster, preload=STAGE_MODULES) as pool:
         return _run(pool, folder, cfg, cfg_file, out, started=started, keep_going=keep_going,
                     fresh=fresh, quiet=quiet, report=report)
 
@@ -458,134 +633,45 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
 def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: str | Path, *,
          started: float, keep_going: bool, fresh: bool, quiet: bool, report: bool
          ) -> RunResult:
+    # timings_s: how long each phase took. The phases overlap (the media log is read
+    # while the signals run, and a participant's metrics start as soon as its
+    # sessions have their signals), so they add up to more than total_s.
     timings: dict[str, float] = {}
     _arrow_threads(pool.workers if pool.local_files else 1)
-    study = load_study(folder, cfg)
-    timings["ingest_s"] = time.perf_counter() - started
+    head = read_study_head(folder, cfg)
+    recs = recording_inputs(head)
+    total = len(recs)
     outdir = OutputFolder(Path(out))
-    multi_coded = _multi_coded(study)
-    if multi_coded:
-        from pipeline.agreement.tables import check_reserved_code
-
-        check_reserved_code(study.media_log)
-    all_coders: dict[int, pd.DataFrame] | None = {} if multi_coded else None
-    inputs, coder_notes = session_inputs(study, cfg, all_coders)
-    total = len(inputs)
-    failures: list[dict] = []
-
-    def failed(inp: SessionInputs, stage: str, outcome: Outcome) -> None:
-        failures.append({"participant_id": inp.key.participant_id,
-                         "session_id": inp.key.session_id, "stage": stage,
-                         "error": outcome.error, "hint": outcome.hint or ""})
-        if not keep_going:
-            raise StageError(outcome.error or "failed", unit=inp.key.label(), stage=stage,
-                             hint=(outcome.hint or "") + "; use --keep-going to run the "
-                             "other sessions and list every failure")
-
-    # -- phase 1: signals + align, cached per session
-    t0 = time.perf_counter()
-    return_freed_memory()  # ingest's temporary arrays
-    if pool.runs_here:
-        # Serial runs do the per-session work in this process: from here on keep
-        # freed memory for the next session's arrays.
-        keep_freed_memory()
-    prepared: dict[int, Prepared] = {}
-    moments: dict[int, tuple[int, float, float]] = {}
-    cache_file = {i: outdir.path(f"{CACHE_DIR}/{inp.key.stem()}.pkl")
-                  for i, inp in enumerate(inputs)}
-    if pool.local_files:
-        # the workers check and fill the cache files themselves
-        todo = list(range(total))
-        tasks = [PrepareTask(inputs[i], cfg, cache_file=cache_file[i], fresh=fresh)
-                 for i in todo]
-    else:
-        # cluster workers may not see this file system: the cache stays with the runner
-        todo = []
-        for i, inp in enumerate(inputs):
-            hit = None if fresh else load_cached(cache_file[i], _cache_key(inp, cfg))
-            if hit is not None:
-                moments[i] = _moments(hit.timeline, cfg)
-                hit.timeline = None
-                prepared[i] = hit
-            else:
-                todo.append(i)
-        tasks = [PrepareTask(inputs[i], cfg) for i in todo]
-    cached = len(prepared)
-    input_sha256: dict[Path, str] = {}
-    bar = Progress(total, "signals", quiet)
-    for _ in prepared:
-        bar.step()
+    work = Sessions(pool, recs, cfg, outdir, fresh=fresh, keep_going=keep_going,
+                    quiet=quiet)
+    if head.ok:  # else the problems are listed with the media log's, below
+        work.queue_signals()
     try:
-        for j, outcome in pool.map(prepare_cached, tasks, stop_on_error=not keep_going):
-            i = todo[j]
-            bar.step()
-            if not outcome.ok:
-                failed(inputs[i], "signals", outcome)
-                continue
-            res: PrepareOutcome = outcome.value
-            cached += res.from_cache
-            if res.prepared.timeline is not None:  # cluster run: store it here
-                res.cache_sha256 = store_cached(cache_file[i], res.cache_key, res.prepared)
-                res.prepared.timeline = None
-            if res.cache_sha256:
-                outdir.record(cache_file[i], "cache", res.cache_sha256)
-            prepared[i] = res.prepared
-            moments[i] = res.moments
-            if res.recording_sha256:
-                input_sha256[inputs[i].recording_path] = res.recording_sha256
+        study = read_study_rest(head, cfg)
+        timings["ingest_s"] = time.perf_counter() - started
+        multi_coded = _multi_coded(study)
+        if multi_coded:
+            from pipeline.agreement.tables import check_reserved_code
+
+            check_reserved_code(study.media_log)
+        all_coders: dict[int, pd.DataFrame] | None = {} if multi_coded else None
+        inputs, coder_notes = session_inputs(study, cfg, recs, all_coders)
+        return_freed_memory()  # ingest's temporary arrays
+        if pool.runs_here:
+            # Serial runs do the per-session work in this process: from here on keep
+            # freed memory for the next session's arrays.
+            keep_freed_memory()
+        work.finish_with(inputs, all_coders)
+        work.run()
     finally:
-        bar.close()
-    timings["signals_s"] = time.perf_counter() - t0
-
-    # -- phase 2: within-participant arousal moments (Chan et al. pooling)
-    by_participant: dict[str, list[tuple[int, float, float]]] = {}
-    for i in sorted(prepared):
-        by_participant.setdefault(inputs[i].key.participant_id, []).append(moments[i])
-    zstats = {pid: _combine_moments(parts) for pid, parts in by_participant.items()}
-
-    # -- phase 3: per-session metrics (and coder agreement)
-    t0 = time.perf_counter()
-    order = sorted(prepared)
-
-    def finish_task(i: int) -> FinishTask:
-        inp = inputs[i]
-        pid = inp.key.participant_id
-        task = FinishTask(inp, zstats[pid][0], zstats[pid][1], cfg,
-                          seed=session_seed(pid, inp.key.session_id),
-                          cache_file=cache_file[i],
-                          agreement_codes=all_coders.get(i) if all_coders is not None
-                          else None)
-        if pool.local_files:
-            task.timeline_file = outdir.path(f"timeline/{inp.key.stem()}.parquet")
-        else:  # workers may not see this file system: ship the timeline
-            task.timeline = task.load_timeline()
-        return task
-
-    finish_tasks = _Lazy(order, finish_task)
-    finished: dict[int, Finished] = {}
-    bar = Progress(len(finish_tasks), "metrics", quiet)
-    try:
-        for j, outcome in pool.map(finish_session, finish_tasks, stop_on_error=not keep_going):
-            i = order[j]
-            bar.step()
-            if not outcome.ok:
-                failed(inputs[i], "metrics", outcome)
-                continue
-            fin: Finished = outcome.value
-            finished[i] = fin
-            rel = f"timeline/{fin.key.stem()}.parquet"
-            if fin.timeline is not None:  # cluster run: write it here
-                outdir.parquet(rel, fin.timeline, "align")
-                fin.timeline = None  # free the memory; the file holds it now
-            else:
-                outdir.record(outdir.path(rel), "align", fin.timeline_sha256)
-    finally:
-        bar.close()
-    timings["metrics_s"] = time.perf_counter() - t0
+        work.close()
+    timings["signals_s"], timings["metrics_s"] = work.signals_done, work.metrics_done
+    prepared, finished, failures = work.prepared, work.finished, work.failures
+    cached, input_sha256 = work.cached, work.input_sha256
 
     # -- phase 5: group tables
     ok = sorted(finished)
-    qc = pd.DataFrame([_qc_row(inputs[i], prepared[i], finished[i].metrics, cfg) for i in ok])
+    qc = pd.DataFrame([_qc_row(inputs[i], prepared[i], finished[i], cfg) for i in ok])
     usable = qc.set_index(["participant_id", "session_id"])["usable"] if len(qc) else None
 
     def stack(attr: str) -> pd.DataFrame:
@@ -619,14 +705,17 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
                                                         "onset_video_s", "peak_video_s",
                                                         "amplitude_us", "rise_time_s",
                                                         "half_recovery_s"]))
-    # The session tables are written by a worker (on a local pool) while this process
-    # goes on with the group analyses.
+    # The group analyses, then the writing of the session tables, run on the pool's
+    # workers (on a local pool) while this process goes on.
+    t0 = time.perf_counter()
+    group = _start_group(pool, study, cfg, tables, finished, ok,
+                         [prepared[i].methods for i in ok])
     writes = [(outdir.path(rel), df) for rel, df in tables.items()]
     tables_pending = pool.submit(write_csvs, writes)
 
     summary = [f"ran {len(ok)} of {total} sessions"
                + (f" ({cached} from cache)" if cached else "")]
-    methods: dict[str, dict] = {"signals": _signal_methods([prepared[i].methods for i in ok])}
+    methods: dict[str, dict] = {}
     summary += _describe(study, cfg, sessions, qc)
     if coder_notes:
         summary.append(f"{len(coder_notes)} session(s) coded by several coders; run uses one "
@@ -635,9 +724,7 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
     details = list(coder_notes)
 
     # -- models and group analyses
-    t0 = time.perf_counter()
-    analysis_lines = _group_analyses(pool, study, cfg, tables, finished, ok, outdir,
-                                     methods)
+    analysis_lines = _collect_group(group, study, cfg, outdir, methods, finished, ok)
     details += analysis_lines
     summary += _headlines(analysis_lines)
     if analysis_lines:
@@ -737,64 +824,103 @@ def _describe(study: Study, cfg: Config, sessions: pd.DataFrame, qc: pd.DataFram
     return lines
 
 
-def _group_analyses(pool: TaskPool, study: Study, cfg: Config,
-                    tables: dict[str, pd.DataFrame],
-                    finished: dict[int, Finished], ok: list[int], outdir: OutputFolder,
-                    methods: dict) -> list[str]:
-    """Models, switch-locked arousal, coder agreement and survey comparisons."""
-    m = cfg.models
-    lines: list[str] = []
-    # The cohort models run in a worker (on a local pool) while this process does the
-    # switch-locked summary and the agreement tables.
-    model_args = (tables["metrics/sessions.csv"], tables["metrics/states.csv"],
-                  tables["metrics/groups.csv"], study.roster, m, cfg.cohorts,
-                  cfg.qc.exclude_flagged_from_models)
-    models_pending = pool.submit(_compare_task, model_args)
-    more_lines = _switch_locked(study, cfg, finished, ok, outdir, methods)
-    agreement_lines = _agreement(study, cfg, outdir, methods, finished, ok)
-    outcome = models_pending.result()
-    # a failure is re-raised here with its own type and details, by fitting again
-    results = outcome.value if outcome.ok else _compare_task(model_args)
-    outdir.csv("models/comparisons.csv", results.comparisons, "models")
-    outdir.csv("models/variance_components.csv", results.variances, "models")
-    methods["models"] = dict(results.methods) | methods.pop("switch_locked")
-    if "agreement" in methods:  # keep the manifest's order: signals, models, agreement
-        methods["agreement"] = methods.pop("agreement")
-    lines += results.summary + more_lines + agreement_lines
-    if study.survey is not None:
-        table = compare_survey(study.survey, study.roster, m.fdr_q, method=m.survey_method,
-                               reference=cfg.cohorts.reference,
-                               items=cfg.survey.items or None,
-                               min_participants=cfg.cohorts.min_participants,
-                               fdr_method=m.fdr_method, confidence=m.confidence_level)
-        outdir.csv("models/survey.csv", table, "models")
-        methods["models"].update(survey_methods(m.survey_method, m.fdr_method))
-    return lines
+@dataclass
+class GroupWork:
+    """The group analyses under way: each is a task on the pool (a worker on a local
+    pool, so this process needs neither scipy nor statsmodels), with its arguments
+    kept to run it again here should it fail (its error is then raised with its own
+    type and details)."""
+
+    tasks: dict[str, tuple[Callable, tuple, object]]
+
+    def result(self, name: str):
+        fn, args, pending = self.tasks[name]
+        outcome = pending.result()
+        return outcome.value if outcome.ok else fn(args)
 
 
-def _compare_task(args: tuple) -> ModelResults:
-    """The cohort comparisons as one task (arguments as one tuple, for the pool)."""
-    sessions, states, groups, roster, models_cfg, cohorts_cfg, exclude = args
-    return compare(sessions, states, groups, roster, models_cfg, cohorts_cfg,
-                   exclude_unusable=exclude)
-
-
-def _switch_locked(study: Study, cfg: Config, finished: dict[int, Finished], ok: list[int],
-                   outdir: OutputFolder, methods: dict) -> list[str]:
-    """Switch-locked arousal: the cohort trajectories and their test."""
+def _start_group(pool: TaskPool, study: Study, cfg: Config, tables: dict[str, pd.DataFrame],
+                 finished: dict[int, Finished], ok: list[int],
+                 signal_methods: list[dict[str, str]]) -> GroupWork:
+    """Start the cohort models, the switch-locked summary, the survey comparison and
+    the signal methods text."""
     m = cfg.models
     parts = [finished[i].switch_locked for i in ok
              if finished[i].switch_locked is not None and len(finished[i].switch_locked)]
-    per_session = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
-    traj, test, more = switch_locked_summary(
-        per_session, study.roster, pre_s=m.switch_locked_pre_s,
-        min_events=m.min_switch_events, confidence=m.confidence_level,
-        reference=cfg.cohorts.reference)
+    work = {
+        "models": (_compare_task, (tables["metrics/sessions.csv"], tables["metrics/states.csv"],
+                                   tables["metrics/groups.csv"], study.roster, m, cfg.cohorts,
+                                   cfg.qc.exclude_flagged_from_models)),
+        "switch_locked": (_switch_locked_task,
+                          (pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(),
+                           study.roster, m, cfg.cohorts.reference)),
+    }
+    if study.survey is not None:
+        work["survey"] = (_survey_task, (study.survey, study.roster, cfg))
+    work["signal_methods"] = (_signal_methods, signal_methods)
+    return GroupWork({name: (fn, args, pool.submit(fn, args))
+                      for name, (fn, args) in work.items()})
+
+
+def _collect_group(group: GroupWork, study: Study, cfg: Config, outdir: OutputFolder,
+                   methods: dict, finished: dict[int, Finished], ok: list[int]) -> list[str]:
+    """Write the group analyses' tables (coder agreement is done here meanwhile);
+    return their summary lines."""
+    methods["signals"] = group.result("signal_methods")
+    agreement_lines = _agreement(study, cfg, outdir, methods, finished, ok)
+    results = group.result("models")
+    outdir.csv("models/comparisons.csv", results["comparisons"], "models")
+    outdir.csv("models/variance_components.csv", results["variances"], "models")
+    traj, test, locked_lines, locked_methods = group.result("switch_locked")
     outdir.csv("metrics/switch_locked.csv", traj, "metrics")
     outdir.csv("models/switch_locked_test.csv", test, "models")
-    methods["switch_locked"] = switch_locked_methods(m.switch_locked_window_s,
-                                                     m.switch_locked_pre_s)
-    return more
+    methods["models"] = results["methods"] | locked_methods
+    if "agreement" in methods:  # keep the manifest's order: signals, models, agreement
+        methods["agreement"] = methods.pop("agreement")
+    if "survey" in group.tasks:
+        table, survey_methods = group.result("survey")
+        outdir.csv("models/survey.csv", table, "models")
+        methods["models"].update(survey_methods)
+    return results["summary"] + locked_lines + agreement_lines
+
+
+def _compare_task(args: tuple) -> dict:
+    """The cohort comparisons as one task (arguments as one tuple, for the pool). The
+    :class:`~pipeline.models.ModelResults` come back as a plain dict, so that taking
+    them in does not import the models package (and statsmodels) into the runner."""
+    from pipeline.models import compare
+
+    sessions, states, groups, roster, models_cfg, cohorts_cfg, exclude = args
+    results = compare(sessions, states, groups, roster, models_cfg, cohorts_cfg,
+                      exclude_unusable=exclude)
+    return {"comparisons": results.comparisons, "variances": results.variances,
+            "methods": dict(results.methods), "summary": list(results.summary)}
+
+
+def _switch_locked_task(args: tuple) -> tuple[pd.DataFrame, pd.DataFrame, list[str], dict]:
+    """Switch-locked arousal: the cohort trajectories, their test, the summary lines
+    and the methods text, as one task."""
+    from pipeline.metrics.switch_locked import switch_locked_methods, switch_locked_summary
+
+    per_session, roster, m, reference = args
+    traj, test, more = switch_locked_summary(
+        per_session, roster, pre_s=m.switch_locked_pre_s, min_events=m.min_switch_events,
+        confidence=m.confidence_level, reference=reference)
+    return traj, test, more, switch_locked_methods(m.switch_locked_window_s,
+                                                   m.switch_locked_pre_s)
+
+
+def _survey_task(args: tuple) -> tuple[pd.DataFrame, dict]:
+    """The survey comparison and its methods text, as one task."""
+    from pipeline.models import compare_survey, survey_methods
+
+    survey, roster, cfg = args
+    m = cfg.models
+    table = compare_survey(survey, roster, m.fdr_q, method=m.survey_method,
+                           reference=cfg.cohorts.reference, items=cfg.survey.items or None,
+                           min_participants=cfg.cohorts.min_participants,
+                           fdr_method=m.fdr_method, confidence=m.confidence_level)
+    return table, survey_methods(m.survey_method, m.fdr_method)
 
 
 def _multi_coded(study: Study) -> bool:

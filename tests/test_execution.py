@@ -53,3 +53,36 @@ def test_unreachable_cluster_is_a_config_error(monkeypatch):
     monkeypatch.setattr("pipeline.execution.DASK_CONNECT_TIMEOUT_S", 1)
     with pytest.raises(ConfigError, match="cannot reach the Dask scheduler"):
         list(run_tasks(square_or_fail, [1, 2], cluster="tcp://127.0.0.1:1"))
+
+
+def test_serial_tasks_run_when_waited_for_in_the_order_queued():
+    from pipeline.execution import TaskPool
+
+    ran = []
+
+    def note(x):
+        ran.append(x)
+        return x
+
+    with TaskPool(1) as pool:
+        futures = [pool.start_task(note, x) for x in (10, 20, 30)]
+        assert ran == []  # queued, not run
+        done = pool.next_done(futures[::-1])
+        assert [f.result().value for f in done] == [10] and ran == [10]
+        pool.cancel(futures[2:])
+        assert futures[2].cancelled()
+        assert pool.next_done(futures[1:2]) == [futures[1]]
+        assert futures[2].result() is None and ran == [10, 20]  # it never ran
+
+
+def test_pool_futures_finish_with_outcomes():
+    from pipeline.execution import TaskPool
+
+    with TaskPool(2) as pool:
+        pending = {pool.start_task(square_or_fail, x): x for x in range(6)}
+        got = {}
+        while pending:
+            for fut in pool.next_done(pending):
+                got[pending.pop(fut)] = fut.result()
+    assert {x: o.value for x, o in got.items() if o.ok} == {0: 0, 1: 1, 2: 4, 4: 16}
+    assert "bad row" in got[3].error and "ZeroDivisionError" in got[5].error

@@ -14,7 +14,7 @@ sys.path.insert(0, str(Path(__file__).parent / "ingest"))
 from ingest_builders import tree_hashes, write_study  # noqa: E402
 
 from pipeline.cli import app  # noqa: E402
-from pipeline.errors import EXIT_PARTIAL, EXIT_STAGE  # noqa: E402
+from pipeline.errors import EXIT_INPUT, EXIT_PARTIAL, EXIT_STAGE  # noqa: E402
 
 # CONTRACT §3: the columns each table has at least
 CONTRACT_COLUMNS = {
@@ -93,6 +93,39 @@ def test_changed_recording_invalidates_only_its_session(study, tmp_path):
     assert "(1 from cache)" in res.output
 
 
+def test_recoded_media_log_keeps_the_signals_cached(study, tmp_path):
+    # the signal work needs no media codes (its cache key holds none): recoding a
+    # session reuses every session's signals, and the metrics follow the new codes
+    out = tmp_path / "out"
+    assert _run(study, out).exit_code == 0
+    log = pd.read_csv(study / "media_log.csv", keep_default_na=False, dtype=str)
+    log["in_view"] = ""
+    log["attended"] = ""
+    log.to_csv(study / "media_log.csv", index=False)
+    res = _run(study, out)
+    assert res.exit_code == 0, res.output
+    assert "(2 from cache)" in res.output
+    sessions = pd.read_csv(out / "metrics/sessions.csv")
+    assert (sessions["media_hours"] == 0).all() and (sessions["switches"] == 0).all()
+
+
+@pytest.mark.parametrize("workers", ["1", "2"])
+def test_media_log_problem_refuses_the_run_while_signals_were_queued(study, tmp_path,
+                                                                     workers):
+    # the signals start before the media log is read; its problems still refuse the run,
+    # with the input error's exit code and the file, line and column named
+    text = (study / "media_log.csv").read_text().splitlines()
+    cells = text[1].split(",")
+    cells[2] = "minus one"  # the second column
+    text[1] = ",".join(cells)
+    (study / "media_log.csv").write_text("\n".join(text) + "\n")
+    res = runner.invoke(app, ["run", str(study), "--out", str(tmp_path / "out"), "--workers",
+                              workers, "--quiet", "--no-report"])
+    assert res.exit_code == EXIT_INPUT, res.output
+    assert "media_log.csv" in res.output and "minus one" in res.output
+    assert not (tmp_path / "out" / "metrics").exists()
+
+
 def _break_one_session(study):
     # a recording whose time axis is not numeric: read_recording refuses it
     pd.DataFrame({"time_s": ["a", "b"], "eda_us": [1.0, 2.0]}).to_parquet(
@@ -114,6 +147,15 @@ def test_keep_going_reports_partial_success(study, tmp_path):
     assert "failed: p02/s1" in res.output
     manifest = json.loads((tmp_path / "out" / "manifest.json").read_text())
     assert manifest["failures"][0]["session_id"] == "s1"
+    assert len(pd.read_csv(tmp_path / "out" / "metrics/sessions.csv")) == 1
+
+
+def test_keep_going_on_two_workers_reports_partial_success(study, tmp_path):
+    _break_one_session(study)
+    res = runner.invoke(app, ["run", str(study), "--out", str(tmp_path / "out"), "--workers",
+                              "2", "--quiet", "--no-report", "--keep-going"])
+    assert res.exit_code == EXIT_PARTIAL, res.output
+    assert "ran 1 of 2 sessions" in res.output
     assert len(pd.read_csv(tmp_path / "out" / "metrics/sessions.csv")) == 1
 
 

@@ -710,8 +710,10 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
     t0 = time.perf_counter()
     group = _start_group(pool, study, cfg, tables, finished, ok,
                          [prepared[i].methods for i in ok])
-    writes = [(outdir.path(rel), df) for rel, df in tables.items()]
-    tables_pending = pool.submit(write_csvs, writes)
+    # one task per table, the longest first (float text is the slow part of a CSV)
+    writes = sorted(((outdir.path(rel), df) for rel, df in tables.items()),
+                    key=lambda item: -item[1].size)
+    tables_pending = [pool.submit(write_csvs, [item]) for item in writes]
 
     summary = [f"ran {len(ok)} of {total} sessions"
                + (f" ({cached} from cache)" if cached else "")]
@@ -731,10 +733,11 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
         outdir.text("models/summary.txt", "\n".join(analysis_lines) + "\n", "models")
         summary.append("full model summary: models/summary.txt")
     timings["models_s"] = time.perf_counter() - t0
-    written = tables_pending.result()
-    if not written.ok:  # write here, so that the error is raised with its own details
-        written.value = write_csvs(writes)
-    for (target, _), sha in zip(writes, written.value):
+    for item, pending in zip(writes, tables_pending):
+        written = pending.result()
+        # a failed write is done again here, so that its error is raised with its details
+        (sha,) = written.value if written.ok else write_csvs([item])
+        target = item[0]
         outdir.record(target, target.relative_to(outdir.root).parts[0], sha)
 
     manifest = {

@@ -108,12 +108,14 @@ def _kohm_to_us(kohm: np.ndarray) -> np.ndarray:
         return np.where(kohm > 0, 1000.0 / kohm, np.nan)
 
 
-def _check_time(time_s: np.ndarray, name: str, raw: pd.Series | None = None) -> None:
+def _check_time(time_s: np.ndarray, name: str,
+                raw: pd.Series | np.ndarray | None = None) -> None:
     bad = ~np.isfinite(time_s)
     if bad.any():
         row = int(np.flatnonzero(bad)[0])
         raise InputError(name, "is not a number", line=row + 2, column="time_s",
-                         value=raw.iloc[row] if raw is not None else time_s[row],
+                         value=(raw.iloc[row] if isinstance(raw, pd.Series) else
+                                time_s[row] if raw is None else raw[row]),
                          hint="time_s must be seconds")
     steps = np.diff(time_s)
     if (steps <= 0).any():
@@ -122,21 +124,29 @@ def _check_time(time_s: np.ndarray, name: str, raw: pd.Series | None = None) -> 
                          value=time_s[row], hint="time_s must be strictly increasing")
 
 
-def _table_to_recording(df: pd.DataFrame, path: Path) -> Recording:
+def _numbers(values: pd.Series | np.ndarray) -> np.ndarray:
+    """A column as float64 (text that is not a number becomes NaN)."""
+    if isinstance(values, np.ndarray) and values.dtype == np.float64:
+        return values
+    return pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
+
+
+def _table_to_recording(df: pd.DataFrame | dict[str, np.ndarray], path: Path) -> Recording:
+    """A recording from a table's columns (a DataFrame, or float64 arrays by name)."""
     name = path.name
-    if "time_s" not in df.columns:
+    columns = list(df.keys())
+    if "time_s" not in columns:
         raise InputError(name, "has no time_s column", line=1, column="time_s",
                          hint="a signal table needs time_s (seconds) and eda_us or eda_kohm")
-    time_s = pd.to_numeric(df["time_s"], errors="coerce").to_numpy(dtype=float)
+    time_s = _numbers(df["time_s"])
     _check_time(time_s, name, df["time_s"])
     channels: dict[str, np.ndarray] = {}
     notes: list[str] = []
     for col in CHANNELS:
-        if col in df.columns:
-            channels[col] = pd.to_numeric(df[col], errors="coerce").to_numpy(dtype=float)
-    if "eda_us" not in channels and "eda_kohm" in df.columns:
-        kohm = pd.to_numeric(df["eda_kohm"], errors="coerce").to_numpy(dtype=float)
-        channels["eda_us"] = _kohm_to_us(kohm)
+        if col in columns:
+            channels[col] = _numbers(df[col])
+    if "eda_us" not in channels and "eda_kohm" in columns:
+        channels["eda_us"] = _kohm_to_us(_numbers(df["eda_kohm"]))
         notes.append("skin resistance (kOhm) converted to conductance (uS = 1000 / kOhm)")
     if "eda_us" not in channels:
         raise InputError(name, "has no skin conductance column", line=1, column="eda_us",
@@ -144,9 +154,32 @@ def _table_to_recording(df: pd.DataFrame, path: Path) -> Recording:
     return Recording(time_s=time_s, channels=channels, source=path, notes=notes)
 
 
+def _numeric_parquet(path: Path) -> dict[str, np.ndarray] | None:
+    """The columns of a Parquet recording as float64 arrays (nulls as NaN), straight
+    from Arrow; None when some column is not numeric (read through pandas instead,
+    which turns text into NaN per cell). Skips building a DataFrame: about 5 ms of
+    a 4-hour, 32 Hz recording's 25 ms read."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pq.read_table(path)
+    if not all(pa.types.is_integer(f.type) or pa.types.is_floating(f.type)
+               for f in table.schema):
+        return None
+    out = {}
+    for name in table.column_names:
+        column = table.column(name).combine_chunks().cast(pa.float64())
+        if column.null_count:
+            column = column.fill_null(np.nan)
+        out[name] = column.to_numpy(zero_copy_only=False)
+    return out
+
+
 def read_table_recording(path: Path, cfg: SignalSettings) -> Recording:
     if path.suffix == ".parquet":
-        df = pd.read_parquet(path)
+        df = _numeric_parquet(path)
+        if df is None:
+            df = pd.read_parquet(path)
     else:
         df = pd.read_csv(path)
     return _table_to_recording(df, path)

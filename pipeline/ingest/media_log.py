@@ -165,6 +165,7 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
                      hint="second counts from the session start; check start/end in "
                      "sessions.csv")
     ok &= good_second & ~late
+    del pos, duration, late, good_second  # 2 million rows' worth each: free them early
 
     # in_view: normalise each distinct cell once, then map back to rows
     inverse, uniq = distinct(frame["in_view"])
@@ -219,6 +220,7 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
                      value=attended.iloc[row],
                      hint="attended must be empty or one of in_view")
     ok &= verdict_rows == fine
+    del verdict_rows, pinverse, bad_codes
 
     out = pd.DataFrame({
         "participant_id": frame["participant_id"],
@@ -228,6 +230,8 @@ def _second_form(table: CsvTable, sessions: pd.DataFrame, vocab: Vocabulary, cod
         "attended": attended,
         "coder": _coders(table, coder),
     })
+    if ok.all():  # the usual case: no copy of the whole log
+        return LogPart(out, table.label, table.lines)
     return LogPart(out[ok].reset_index(drop=True), table.label, table.lines[ok])
 
 

@@ -7,6 +7,7 @@ here and only here, printed as readable lines, and turned into an exit status;
 
 from __future__ import annotations
 
+import gc
 import sys
 
 import typer
@@ -78,7 +79,14 @@ _register()
 
 
 def main() -> None:  # console entry point
-    app(prog_name="screenweave")
+    try:
+        app(prog_name="screenweave")
+    finally:
+        # Every output is written and closed by now. Freezing the heap spares the
+        # interpreter's last garbage collections at exit, which walk every object of
+        # the imported libraries (measured: 0.5 s after importing the stage modules,
+        # 0.1 s after the command line's own imports).
+        gc.freeze()
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -8,6 +8,7 @@ stops the others.
 
 from __future__ import annotations
 
+import gc
 import importlib
 import os
 import traceback
@@ -104,6 +105,9 @@ def _start_worker(preload: Sequence[str] = ()) -> None:
     _limit_threads()
     for name in preload:
         importlib.import_module(name)
+    # what the imports made lives as long as the worker: keep it out of the garbage
+    # collector's passes over the tasks' objects
+    gc.freeze()
 
 
 def _limit_threads() -> None:

@@ -78,3 +78,24 @@ def test_good_recording_is_read(tmp_path):
     rec = read_recording_checked(path, SignalSettings())
     assert rec.sampling_rate_hz == pytest.approx(8.0)
     assert np.isfinite(rec.channels["eda_us"]).all()
+
+
+def test_numeric_parquet_is_read_as_pandas_reads_it(tmp_path):
+    # Parquet recordings of numeric columns skip pandas (Arrow -> float64 arrays); the
+    # arrays must equal what pandas' reader gives: float32 widened exactly, nulls as
+    # NaN, integers as floats. A text column sends the file through pandas instead,
+    # where a cell that is not a number becomes NaN.
+    from pipeline.ingest.recordings import read_table_recording
+
+    eda = pd.array([5.0, None, 5.25, 6.5], dtype="Float32")
+    numeric = pd.DataFrame({"time_s": [0.0, 0.25, 0.5, 0.75], "eda_us": eda,
+                            "hr_bpm": pd.array([70, 71, None, 72], dtype="Int64")})
+    numeric.to_parquet(tmp_path / "a.parquet", index=False)
+    rec = read_table_recording(tmp_path / "a.parquet", SignalSettings())
+    np.testing.assert_array_equal(rec.channels["eda_us"], [5.0, np.nan, 5.25, 6.5])
+    np.testing.assert_array_equal(rec.channels["hr_bpm"], [70.0, 71.0, np.nan, 72.0])
+    assert rec.channels["eda_us"].dtype == np.float64
+    text = numeric.assign(hr_bpm=["70", "n/a", "", "72"])
+    text.to_parquet(tmp_path / "b.parquet", index=False)
+    rec = read_table_recording(tmp_path / "b.parquet", SignalSettings())
+    np.testing.assert_array_equal(rec.channels["hr_bpm"], [70.0, np.nan, np.nan, 72.0])

@@ -19,6 +19,7 @@ Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
 
     .venv/bin/python benchmarks/scaling.py            # sizes 12, 40, 120 sessions
     .venv/bin/python benchmarks/scaling.py --quick    # 4 and 8 sessions, for a smoke run
+    .venv/bin/python benchmarks/scaling.py --repeat 5 # medians of 5 runs (default 3)
     .venv/bin/python benchmarks/scaling.py --keep /tmp/w --reuse --only large
                                       # re-measure one size on studies made before
 
@@ -30,6 +31,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -47,34 +49,58 @@ SIZES = {"small": (3, 2), "medium": (10, 2), "large": (30, 2)}
 QUICK = {"small": (1, 2), "medium": (2, 2)}
 
 
+PAGE = os.sysconf("SC_PAGE_SIZE")
+
+
+def _rss(pid: int) -> int:
+    """Resident set size of one process (bytes), from /proc/PID/statm (cheap)."""
+    with open(f"/proc/{pid}/statm") as fh:
+        return int(fh.read().split()[1]) * PAGE
+
+
+def _pss(pid: int) -> int:
+    """Proportional set size of one process (bytes), from /proc/PID/smaps_rollup."""
+    with open(f"/proc/{pid}/smaps_rollup") as fh:
+        for line in fh:
+            if line.startswith("Pss:"):
+                return int(line.split()[1]) * 1024
+    return 0
+
+
 def measure(cmd: list[str], env: dict | None = None) -> dict:
     """Run a command; return wall seconds and the peak memory of its process tree.
 
     Two memory figures: the peak of the summed resident set sizes (RSS) of the
     process and its children, sampled every 50 ms, and the peak of their summed
-    proportional set sizes (PSS, Linux), sampled every 250 ms. Forked workers share
-    the pages of the libraries the runner imported; RSS counts those once per
-    process, PSS splits them between the processes that share them.
+    proportional set sizes (PSS), sampled every 250 ms. Forked workers share the
+    pages of the libraries they import before the fork; RSS counts those once per
+    process, PSS splits them between the processes that share them. The sampler reads
+    /proc/PID/statm and /proc/PID/smaps_rollup, and finds the children every 250 ms,
+    so that it takes little of the CPU the run itself is measured on (reading the
+    whole smaps file every time, as psutil's memory_full_info does, cost a 2-worker
+    run up to a second on 2 cores).
     """
     start = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, env=env)
     root = psutil.Process(proc.pid)
     peak, peak_pss, tick = 0, 0, 0
+    pids = [proc.pid]
     while proc.poll() is None:
-        try:
-            procs = [root] + root.children(recursive=True)
-            rss = pss = 0
-            for p in procs:
-                try:
-                    rss += p.memory_info().rss
-                    if tick % 5 == 0:
-                        pss += p.memory_full_info().pss
-                except (psutil.NoSuchProcess, psutil.AccessDenied, AttributeError):
-                    pass
-            peak = max(peak, rss)
-            peak_pss = max(peak_pss, pss)
-        except psutil.NoSuchProcess:
-            pass
+        if tick % 5 == 0:
+            try:
+                pids = [proc.pid] + [c.pid for c in root.children(recursive=True)]
+            except psutil.NoSuchProcess:
+                pass
+        rss = pss = 0
+        for pid in pids:
+            try:
+                rss += _rss(pid)
+                if tick % 5 == 0:
+                    pss += _pss(pid)
+            except (FileNotFoundError, ProcessLookupError, PermissionError, ValueError):
+                pass
+        peak = max(peak, rss)
+        peak_pss = max(peak_pss, pss)
         tick += 1
         time.sleep(0.05)
     out = proc.stdout.read().decode(errors="replace")
@@ -121,12 +147,16 @@ if __name__ == "__main__":
 """
 
 
-def machine_ceiling() -> float:
+def machine_ceiling(repeat: int = 5) -> list[float]:
     """Speedup of 2 processes over 1 on a purely compute-bound, perfectly parallel task
-    (sorting arrays): what this machine allows any 2-worker run at best."""
-    out = subprocess.run([str(BIN / "python"), "-c", CEILING_SCRIPT], check=True,
-                         capture_output=True, text=True).stdout
-    return float(out.strip().splitlines()[-1])
+    (sorting arrays): what this machine allows any 2-worker run at best. One figure
+    per repeat (a shared machine's figure varies from minute to minute)."""
+    out = []
+    for _ in range(repeat):
+        text = subprocess.run([str(BIN / "python"), "-c", CEILING_SCRIPT], check=True,
+                              capture_output=True, text=True).stdout
+        out.append(float(text.strip().splitlines()[-1]))
+    return out
 
 
 #: NeuroKit2 is run on at most this many recordings of a study (evenly spaced); its
@@ -136,7 +166,7 @@ NK_MAX_FILES = 40
 
 
 def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
-               work: Path, reuse: bool = False) -> dict:
+               work: Path, reuse: bool = False, repeat: int = 3) -> dict:
     study = work / f"study_{name}"
     synth = [str(BIN / "screenweave"), "synth", str(study), "--participants-per-cohort",
              str(ppc), "--sessions", str(sessions), "--hours", str(hours), "--rate-hz",
@@ -154,23 +184,42 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     row = {"size": name, "sessions": n_sessions, "participant_hours": participant_hours,
            "rate_hz": rate, "study_mb": sum(p.stat().st_size for p in study.rglob("*")
                                            if p.is_file()) / 2**20}
-    for workers in (1, 2):
-        out = work / f"out_{name}_{workers}"
-        m = measure([str(BIN / "screenweave"), "run", str(study), "--out", str(out),
-                     "--workers", str(workers), "--fresh", "--quiet", "--no-report"])
-        row[f"wall_s_workers{workers}"] = m["wall_s"]
-        row[f"peak_rss_mb_workers{workers}"] = m["peak_rss_mb"]
-        row[f"peak_pss_mb_workers{workers}"] = m["peak_pss_mb"]
-        stages = json.loads((out / "manifest.json").read_text()).get("timings_s", {})
-        row[f"stage_s_workers{workers}"] = stages
-        row[f"participant_hours_per_s_workers{workers}"] = participant_hours / m["wall_s"]
+    # Each measurement is repeated (--repeat, 1 and 2 workers interleaved, so that a
+    # slow spell of a shared machine touches both) and the median is reported; every
+    # single figure is kept in the JSON.
+    runs: dict[int, list[dict]] = {1: [], 2: []}
+    for _ in range(repeat):
+        for workers in (1, 2):
+            out = work / f"out_{name}_{workers}"
+            m = measure([str(BIN / "screenweave"), "run", str(study), "--out", str(out),
+                         "--workers", str(workers), "--fresh", "--quiet", "--no-report"])
+            m["stages"] = json.loads((out / "manifest.json").read_text()).get("timings_s", {})
+            runs[workers].append(m)
+    for workers, ms in runs.items():
+        walls = [m["wall_s"] for m in ms]
+        wall = statistics.median(walls)
+        row[f"wall_s_workers{workers}"] = wall
+        row[f"wall_s_workers{workers}_each"] = walls
+        row[f"peak_rss_mb_workers{workers}"] = max(m["peak_rss_mb"] for m in ms)
+        row[f"peak_pss_mb_workers{workers}"] = max(m["peak_pss_mb"] for m in ms)
+        # the stage timings of the run whose wall time is the median (or next above it)
+        middle = min(ms, key=lambda m: (m["wall_s"] < wall, abs(m["wall_s"] - wall)))
+        row[f"stage_s_workers{workers}"] = middle["stages"]
+        row[f"participant_hours_per_s_workers{workers}"] = participant_hours / wall
     row["speedup_2_workers"] = row["wall_s_workers1"] / row["wall_s_workers2"]
-    nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
-                  str(NK_MAX_FILES)])
-    nk_s, nk_hours, nk_files = map(float, nk["output"].strip().splitlines()[-1].split())
+    row["speedup_2_workers_each"] = [a["wall_s"] / b["wall_s"]
+                                     for a, b in zip(runs[1], runs[2])]
+    nks = []
+    for _ in range(repeat):
+        nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
+                      str(NK_MAX_FILES)])
+        nks.append(tuple(map(float, nk["output"].strip().splitlines()[-1].split())))
+    nk_s = statistics.median(t for t, _, _ in nks)
+    _, nk_hours, nk_files = nks[0]
     row["neurokit2_files_measured"] = int(nk_files)
     row["neurokit2_hours_measured"] = nk_hours
     row["neurokit2_eda_process_s"] = nk_s * n_sessions / nk_files
+    row["neurokit2_eda_process_s_each"] = [t * n_sessions / nk_files for t, _, _ in nks]
     row["neurokit2_extrapolated"] = int(nk_files) < n_sessions
     row["run_vs_neurokit2_time"] = row["wall_s_workers2"] / row["neurokit2_eda_process_s"]
     return row
@@ -184,6 +233,8 @@ def main() -> None:
     ap.add_argument("--keep", type=Path, default=None, help="work folder to keep")
     ap.add_argument("--reuse", action="store_true",
                     help="with --keep: reuse studies already made there by an earlier run")
+    ap.add_argument("--repeat", type=int, default=3,
+                    help="measure each run this many times and report the median")
     ap.add_argument("--only", choices=["small", "medium", "large"], action="append",
                     help="measure only these sizes (repeatable)")
     args = ap.parse_args()
@@ -197,13 +248,17 @@ def main() -> None:
             continue
         print(f"== {name}: {2 * ppc * sessions} sessions of {hours} h", flush=True)
         rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work,
-                               reuse=args.reuse and args.keep is not None))
+                               reuse=args.reuse and args.keep is not None,
+                               repeat=args.repeat))
         print(json.dumps(rows[-1], indent=1), flush=True)
-    ceiling = machine_ceiling()
+    ceilings = machine_ceiling()
+    ceiling = statistics.median(ceilings)
     result = {
         "machine": {"cores": os.cpu_count(), "memory_gb": psutil.virtual_memory().total / 2**30,
                     "python": sys.version.split()[0],
-                    "two_process_ceiling_speedup": ceiling},
+                    "two_process_ceiling_speedup": ceiling,
+                    "two_process_ceiling_speedup_each": ceilings},
+        "repeat": args.repeat,
         "rows": rows,
         "rss_growth_smallest_to_largest_workers2": rows[-1]["peak_rss_mb_workers2"]
         / rows[0]["peak_rss_mb_workers2"],
@@ -225,8 +280,9 @@ def main() -> None:
               f"{r['peak_rss_mb_workers2']:.0f} | {r['peak_pss_mb_workers2']:.0f} | "
               f"{r['neurokit2_eda_process_s']:.1f} | "
               f"{r['run_vs_neurokit2_time']:.3f} |")
-    print(f"\nthis machine's ceiling for 2 processes on a perfectly parallel compute task: "
-          f"{ceiling:.2f}x")
+    print(f"\nmedians of {args.repeat} runs each; this machine's ceiling for 2 processes on a "
+          f"perfectly parallel compute task: {ceiling:.2f}x (runs: "
+          f"{', '.join(f'{c:.2f}' for c in ceilings)})")
     print(f"RSS growth smallest -> largest (2 workers): "
           f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x (PSS "
           f"{result['pss_growth_smallest_to_largest_workers2']:.2f}x); written {target}")

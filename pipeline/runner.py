@@ -48,12 +48,14 @@ from pipeline.types import (RecordingInputs, SessionInputs, SessionKey, SessionM
 CACHE_DIR = "cache/prepare"
 
 #: The stage modules that import scipy and statsmodels (about a second on first
-#: import). This module imports them inside the task functions that use them, and
-#: each local worker imports them as it starts: with workers, the runner's process
-#: never needs them (every task that does runs on the pool), and the workers'
-#: imports run while the runner reads the study.
+#: import), and the statsmodels model the cohort comparison fits first (imported
+#: there on first use). This module imports them inside the task functions that use
+#: them, and each local worker imports them as it starts: with workers, the runner's
+#: process never needs them (every task that does runs on the pool), and the
+#: workers' imports run while the runner reads the study.
 STAGE_MODULES = ("pipeline.signals", "pipeline.metrics.session",
-                 "pipeline.metrics.switch_locked", "pipeline.models")
+                 "pipeline.metrics.switch_locked", "pipeline.models",
+                 "statsmodels.genmod.generalized_estimating_equations")
 
 
 # ----------------------------------------------------------------- per-session tasks

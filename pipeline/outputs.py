@@ -15,6 +15,7 @@ import tempfile
 from pathlib import Path
 from typing import Any, Callable
 
+import numpy as np
 import pandas as pd
 
 from pipeline.errors import InputError
@@ -70,14 +71,21 @@ def write_parquet(target: Path, df: pd.DataFrame) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
-def write_csvs(items: list[tuple[Path, pd.DataFrame]]) -> list[str]:
-    """Write tables as CSV atomically (a task the runner hands to a worker); return
-    each file's SHA-256."""
-    out = []
-    for target, df in items:
-        atomic_write(target, lambda p, df=df: df.to_csv(p, index=False))
-        out.append(sha256_file(target))
-    return out
+def csv_bytes(part: tuple[pd.DataFrame, bool]) -> bytes:
+    """Rows of a table as the UTF-8 bytes of CSV text, with the header line when the
+    flag is set (a task the runner hands to a worker). A table cut into blocks of
+    rows gives, block after block, the same bytes as the whole table: pandas writes
+    each cell on its own."""
+    df, header = part
+    return df.to_csv(index=False, header=header).encode("utf-8")
+
+
+def row_blocks(df: pd.DataFrame, n: int, min_rows: int) -> list[tuple[pd.DataFrame, bool]]:
+    """``df`` cut into up to ``n`` blocks of consecutive rows (one block below
+    ``min_rows`` rows), the first carrying the header: the parts of :func:`csv_bytes`."""
+    blocks = max(1, min(n, len(df) // max(1, min_rows)))
+    edges = np.linspace(0, len(df), blocks + 1).astype(int)
+    return [(df.iloc[a:b], i == 0) for i, (a, b) in enumerate(zip(edges[:-1], edges[1:]))]
 
 
 class OutputFolder:

@@ -35,3 +35,27 @@ def test_rewrite_replaces_whole_file_and_hashes_are_recorded(tmp_path):
     assert (tmp_path / "t.csv").read_text() == "a\n3\n"
     h = out.hashes()
     assert h["t.csv"]["stage"] == "metrics" and len(h["t.csv"]["sha256"]) == 64
+
+
+def test_csv_blocks_join_to_the_whole_tables_bytes():
+    # the runner has workers format a long table in blocks of rows: joined, the blocks
+    # must be byte for byte what pandas writes for the whole table (floats in their
+    # shortest round-trip form, NaN as an empty cell, text quoted where needed)
+    import numpy as np
+    import pandas as pd
+
+    from pipeline.outputs import csv_bytes, row_blocks
+
+    rng = np.random.default_rng(3)
+    df = pd.DataFrame({"participant_id": [f"p{i % 7}" for i in range(1001)],
+                       "note": ["a,b" if i % 5 == 0 else "" for i in range(1001)],
+                       "x": rng.normal(size=1001), "n": np.arange(1001)})
+    df.loc[::9, "x"] = np.nan
+    whole = df.to_csv(index=False).encode("utf-8")
+    for n, min_rows in [(1, 10), (2, 10), (3, 400), (4, 2000)]:
+        parts = row_blocks(df, n, min_rows)
+        assert len(parts) == max(1, min(n, len(df) // min_rows))
+        assert b"".join(csv_bytes(p) for p in parts) == whole
+    empty = pd.DataFrame(columns=["a", "b"])
+    assert b"".join(csv_bytes(p) for p in row_blocks(empty, 2, 10)) == \
+        empty.to_csv(index=False).encode()

@@ -64,6 +64,12 @@ class SessionKey:
         return f"{self.participant_id}__{self.session_id}"
 
 
+def session_keys(sessions: pd.DataFrame) -> list[SessionKey]:
+    """The key of each row of a sessions table, in its order."""
+    return [SessionKey(p, s) for p, s in
+            sessions[["participant_id", "session_id"]].itertuples(index=False)]
+
+
 @dataclass
 class Study:
     """A validated study folder. Everything here has passed ingest's checks.
@@ -99,8 +105,7 @@ class Study:
     warnings: list[str] = field(default_factory=list)
 
     def session_keys(self) -> list[SessionKey]:
-        return [SessionKey(p, s) for p, s in
-                self.sessions[["participant_id", "session_id"]].itertuples(index=False)]
+        return session_keys(self.sessions)
 
     def coders(self, key: SessionKey) -> list[str]:
         """The coders of one session, sorted ('' for a log without coder column)."""

@@ -29,7 +29,7 @@ from pipeline.ingest import sync as sync_file
 from pipeline.ingest.csvfile import read_table
 from pipeline.ingest.media_log import read_media_log
 from pipeline.ingest.signal_files import find_signal_files, read_recording_checked
-from pipeline.types import SessionKey, Study
+from pipeline.types import SessionKey, Study, session_keys
 
 __all__ = ["load_study", "read_study_head", "read_study_rest", "StudyHead",
            "read_recording_checked"]
@@ -79,8 +79,7 @@ class StudyHead:
         return not self.sync_problems
 
     def session_keys(self) -> list[SessionKey]:
-        return [SessionKey(p, s) for p, s in
-                self.sessions[["participant_id", "session_id"]].itertuples(index=False)]
+        return session_keys(self.sessions)
 
 
 def load_study(folder: Path, cfg: Config) -> Study:
@@ -154,8 +153,7 @@ def read_study_head(folder: Path, cfg: Config) -> StudyHead:
             if not len(table):
                 sync_warnings.append("sync.csv: has no rows; every session is aligned at "
                                      "zero and flagged in QC")
-    keys = [SessionKey(p, s) for p, s in
-            sessions[["participant_id", "session_id"]].itertuples(index=False)]
+    keys = session_keys(sessions)
     recording_warnings: list[str] = []
     recordings = find_signal_files(folder, keys, recording_warnings)
     return StudyHead(folder=folder, roster=roster, sessions=sessions, sync=sync,

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from pipeline.types import STATES
+from pipeline.types import STATES, TEXT
 
 
 def _distinct(in_view: pd.Series) -> tuple[np.ndarray, list[str], np.ndarray]:
@@ -53,6 +53,6 @@ def classify_states(in_view: pd.Series) -> pd.DataFrame:
                     + [None], dtype=object)[codes]
     return pd.DataFrame({
         "n_in_view": pd.Series(n, index=in_view.index, dtype="Int64").where(coded, pd.NA),
-        "state": pd.array(state, dtype="string"),
-        "fine_state": pd.array(fine, dtype="string"),
+        "state": pd.array(state, dtype=TEXT),
+        "fine_state": pd.array(fine, dtype=TEXT),
     }, index=in_view.index)

@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 
 from pipeline.metrics.states import classify_states, state_codes
-from pipeline.types import STATES
+from pipeline.types import STATES, TEXT
 
 
 def _by_second(in_view: pd.Series) -> pd.DataFrame:
@@ -24,8 +24,8 @@ def _by_second(in_view: pd.Series) -> pd.DataFrame:
         state.append("none" if not codes else "single" if len(codes) == 1 else "multi")
         fine.append("+".join(codes) if codes else "none")
     return pd.DataFrame({"n_in_view": pd.array(n, dtype="Int64"),
-                         "state": pd.array(state, dtype="string"),
-                         "fine_state": pd.array(fine, dtype="string")}, index=in_view.index)
+                         "state": pd.array(state, dtype=TEXT),
+                         "fine_state": pd.array(fine, dtype=TEXT)}, index=in_view.index)
 
 
 def _random_in_view(seed: int, n: int = 400) -> pd.Series:

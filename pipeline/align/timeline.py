@@ -16,7 +16,7 @@ from pipeline.align.clock import ClockMap, fit_clock_map
 from pipeline.config import SignalSettings
 from pipeline.errors import StageError
 from pipeline.metrics.states import classify_states
-from pipeline.types import SessionInputs, SessionKey, SessionSignals
+from pipeline.types import TEXT, TIMELINE_COLUMNS, SessionInputs, SessionKey, SessionSignals
 
 #: Sample-level columns averaged into each second, with the validity column they obey.
 _MEANS = {
@@ -88,7 +88,7 @@ def _per_second(column: pd.Series, row: np.ndarray
     value = np.full(row.size, -1, dtype=np.int64)
     has = row >= 0
     value[has] = value_of_row[row[has]]
-    return value, pd.Series(distinct).astype("string").array
+    return value, pd.Series(distinct).astype(TEXT).array
 
 
 def _bin_means(second: np.ndarray, values: np.ndarray, use: np.ndarray, n: int
@@ -162,12 +162,17 @@ def join_codes(inputs: SessionInputs, seconds: pd.DataFrame) -> pd.DataFrame:
     :data:`~pipeline.types.TIMELINE_COLUMNS` (``arousal`` NaN until the metrics stage
     fills it)."""
     key = inputs.key
-    columns: dict = {"participant_id": key.participant_id, "session_id": key.session_id}
+    every = np.zeros(inputs.duration_s, dtype=np.int64)
+    columns: dict = {"participant_id": pd.array([key.participant_id], dtype=TEXT).take(every),
+                     "session_id": pd.array([key.session_id], dtype=TEXT).take(every)}
     columns.update(_codes_columns(inputs))
     for col in seconds.columns:
         columns[col] = seconds[col].to_numpy()
     columns["arousal"] = np.nan
-    return pd.DataFrame(columns)
+    # the declared order, whichever half made a column (then any a stage added)
+    ordered = {col: columns.pop(col) for col in TIMELINE_COLUMNS if col in columns}
+    ordered.update(columns)
+    return pd.DataFrame(ordered)
 
 
 def build_timeline(inputs: SessionInputs, signals: SessionSignals | None,
@@ -236,6 +241,8 @@ def _signal_columns(signals: SessionSignals, clock: ClockMap, n: int, cfg: Signa
     })
     onset_sec = np.floor(onset_v[keep]).astype(np.int64)
     columns["scr_onsets"] = np.bincount(onset_sec, minlength=n)[:n]
+    # float64 also when no SCR falls inside (bincount of no weights counts in int64)
     columns["scr_amplitude_sum_us"] = np.bincount(
-        onset_sec, weights=scrs_video["amplitude_us"].to_numpy(), minlength=n)[:n]
+        onset_sec, weights=scrs_video["amplitude_us"].to_numpy(), minlength=n)[:n] \
+        .astype(np.float64, copy=False)
     return columns, scrs_video, bool(inside.any())

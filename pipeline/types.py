@@ -53,8 +53,8 @@ STATES = ("none", "single", "multi")
 #: The dtype of the timeline's text columns (codes, states, IDs): pandas' string dtype
 #: held in Arrow. A timeline's few distinct texts repeat over thousands of seconds;
 #: held in Arrow they are taken, compared, factorised and written to Parquet without a
-#: Python object per second (measured: the Parquet conversion of a 4-hour timeline in
-#: 6 ms instead of 15 ms; benchmarks/README.md).
+#: Python object per second (measured on a 4-hour session of the reference study of
+#: benchmarks/scaling.py: its timeline converts to Arrow in 6 ms instead of 15 ms).
 TEXT = pd.StringDtype("pyarrow")
 
 

@@ -36,6 +36,7 @@ import io
 import re
 from dataclasses import dataclass
 from pathlib import Path
+from typing import BinaryIO, Iterator
 
 import numpy as np
 import pandas as pd
@@ -137,12 +138,14 @@ def _separator(header_line: str) -> str:
     return ","
 
 
-def _physical_lines(text: str | bytes) -> int:
-    """Lines as a text editor counts them (``\n``, ``\r\n`` or a lone ``\r`` end one)."""
+def _physical_lines(text: str | bytes, start: int = 0, end: int | None = None) -> int:
+    """Lines as a text editor counts them (``\n``, ``\r\n`` or a lone ``\r`` end one),
+    in ``text[start:end]`` (counted in place: a big block is not copied)."""
+    end = len(text) if end is None else end
     nl, cr = ("\n", "\r") if isinstance(text, str) else (b"\n", b"\r")
-    n_cr = text.count(cr)
-    n = text.count(nl) + n_cr - (text.count(cr + nl) if n_cr else 0)
-    if text and not text.endswith((nl, cr)):
+    n_cr = text.count(cr, start, end)
+    n = text.count(nl, start, end) + n_cr - (text.count(cr + nl, start, end) if n_cr else 0)
+    if end > start and not text.endswith((nl, cr), start, end):
         n += 1
     return n
 
@@ -247,11 +250,15 @@ _TEXT = pa.dictionary(pa.int32(), pa.string())
 _POOL = pa.system_memory_pool()
 #: Bytes decoded at a time to check that a non-ASCII file is UTF-8 (bounds the memory).
 _UTF8_CHUNK = 1 << 20
+#: Bytes of a file parsed at a time by the Arrow reader. A file is read block by block
+#: (each cut after its last line break), so a big media log never sits in memory
+#: whole, as bytes or as Arrow arrays: only one block and each column's codes do.
+BLOCK_BYTES = 16 << 20
 
 
-def _is_utf8(data: bytes, start: int) -> bool:
-    """Whether ``data[start:]`` is UTF-8 as Python reads it (ASCII is checked in one pass)."""
-    view = memoryview(data)[start:]
+def _is_utf8(data: bytes, start: int, end: int | None = None) -> bool:
+    """Whether ``data[start:end]`` is UTF-8 as Python reads it (ASCII is checked in one pass)."""
+    view = memoryview(data)[start:end]
     if not len(view) or int(np.frombuffer(view, dtype=np.uint8).max()) < 0x80:
         return True
     decoder = codecs.getincrementaldecoder("utf-8")()
@@ -264,86 +271,149 @@ def _is_utf8(data: bytes, start: int) -> bool:
     return True
 
 
-def _last_line_agrees(data: bytes, start: int, sep: str, last: list[str]) -> bool:
-    """Whether pandas reads the file's last line as Arrow read its last record.
+def _last_line_agrees(data: bytes, start: int, end: int, sep: str, last: list[str]) -> bool:
+    """Whether pandas reads the last line of ``data[start:end]`` as Arrow read its last
+    record.
 
     Arrow accepts a quote left open on the last line (the value runs to the end of the
-    file); the careful reader refuses it, and so must we.
+    block); the careful reader refuses it at the end of a file, and a quoted value that
+    runs on into the next block is not for the block-wise reader either.
     """
-    end = len(data)
+    stop = end
     for ending in (b"\r\n", b"\n", b"\r"):
-        if data.endswith(ending):
-            end -= len(ending)
+        if data.endswith(ending, start, end):
+            stop -= len(ending)
             break
-    begin = max(data.rfind(b"\n", start, end), data.rfind(b"\r", start, end), start - 1) + 1
+    begin = max(data.rfind(b"\n", start, stop), data.rfind(b"\r", start, stop), start - 1) + 1
     try:
-        row = _pandas_csv(data[begin:].decode("utf-8"), sep)
+        row = _pandas_csv(data[begin:end].decode("utf-8"), sep)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError, OverflowError):
         return False
     return row.shape == (1, len(last)) and row.iloc[0].tolist() == last
 
 
-def _arrow_table(data: bytes, label: str) -> tuple[pa.Table, str] | None:
-    """Parse a plain CSV file with Arrow: (every record, the separator), or None.
+def _blocks(fh: BinaryIO, block_bytes: int) -> Iterator[tuple[bytes, int]]:
+    """The file in blocks of whole lines: ``(data, end)``, the block being
+    ``data[:end]`` (cut after its last ``\n``; the last block is whatever remains). What
+    follows the cut is read again with the next block, so no block is copied. A line
+    longer than a block makes a longer block."""
+    while True:
+        data = fh.read(block_bytes)
+        if not data:
+            return
+        end = data.rfind(b"\n") + 1
+        while end == 0:  # no line break yet: a long line, or the end of the file
+            more = fh.read(block_bytes)
+            if not more:
+                end = len(data)
+                break
+            data += more
+            end = data.rfind(b"\n") + 1
+        if end < len(data):
+            fh.seek(end - len(data), io.SEEK_CUR)
+        yield data, end
+        del data  # before the next block is read
+
+
+class _Distinct:
+    """One column's distinct values across blocks, and each record's code into them."""
+
+    def __init__(self) -> None:
+        self.index: dict[str, int] = {}
+        self.parts: list[np.ndarray] = []
+
+    def add(self, column: pa.ChunkedArray) -> None:
+        column = column.unify_dictionaries(_POOL)  # one dictionary for the block
+        if not column.num_chunks:
+            return
+        values = column.chunks[0].dictionary.to_pylist()
+        index = self.index
+        mapping = np.fromiter((index.setdefault(v, len(index)) for v in values),
+                              dtype=np.int32, count=len(values))
+        # the smallest integer type that holds every code so far (np.concatenate widens)
+        mapping = mapping.astype(np.min_scalar_type(max(len(index) - 1, 0)))
+        for chunk in column.chunks:
+            self.parts.append(mapping[chunk.indices.to_numpy()])
+
+    def codes_and_values(self) -> tuple[np.ndarray, np.ndarray]:
+        codes = np.concatenate(self.parts) if self.parts else np.zeros(0, dtype=np.int32)
+        self.parts = []
+        values = np.empty(len(self.index), dtype=object)
+        values[:] = list(self.index)
+        return _stripped(codes, values)
+
+
+def _arrow_records(fh: BinaryIO, label: str, block_bytes: int = BLOCK_BYTES
+                   ) -> _Records | None:
+    """Parse a plain CSV file with Arrow, block by block: every record, or None.
 
     Arrow's reader runs on the threads Arrow is allowed (``pyarrow.set_cpu_count``,
     which the runner sets). None is returned for other encodings than UTF-8, blank
-    lines, quoted line breaks, rows of another length than the header and anything
-    Arrow refuses: the careful reader then reads the file and explains any problem.
+    lines, quoted line breaks, rows of another length than the header, NUL bytes past
+    the first block and anything Arrow refuses: the careful reader then reads the file
+    and explains any problem.
     """
-    if data.startswith(UTF16_BOMS):
+    blocks = _blocks(fh, block_bytes)
+    first, end = next(blocks, (b"", 0))
+    if first.startswith(UTF16_BOMS):
         return None
-    _refuse_binary(data, label)
-    start = len(UTF8_BOM) if data.startswith(UTF8_BOM) else 0
-    if data.startswith(UTF8_BOM, start) or not _is_utf8(data, start):
-        return None  # a second byte-order mark (Arrow would drop it too) or not UTF-8
-    ends = [i for i in (data.find(b"\n", start), data.find(b"\r", start)) if i >= 0]
-    header = data[start: min(ends) if ends else len(data)].decode("utf-8")
-    if not header.strip():
-        return None  # leading blank lines, or an empty file
+    _refuse_binary(first[:end] if end < len(first) else first, label)
+    start = len(UTF8_BOM) if first.startswith(UTF8_BOM) else 0
+    if first.startswith(UTF8_BOM, start):
+        return None  # a second byte-order mark (Arrow would drop it too)
+    ends = [i for i in (first.find(b"\n", start, end), first.find(b"\r", start, end))
+            if i >= 0]
+    header = first[start: min(ends) if ends else end]
+    if not _is_utf8(header, 0) or not header.decode("utf-8").strip():
+        return None  # not UTF-8, or leading blank lines, or an empty file
+    header = header.decode("utf-8")
     sep = _separator(header)
     try:
         names = [f"f{i}" for i in range(len(next(csv.reader([header], delimiter=sep))))]
     except csv.Error:
         return None
-    quoted = data.find(b'"', start) >= 0
-    try:
-        table = pa_csv.read_csv(
-            pa.py_buffer(data)[start:], memory_pool=_POOL,
-            read_options=pa_csv.ReadOptions(column_names=names, use_threads=True),
-            parse_options=pa_csv.ParseOptions(delimiter=sep, quote_char='"', double_quote=True,
-                                              escape_char=False, newlines_in_values=quoted,
-                                              ignore_empty_lines=True),
-            convert_options=pa_csv.ConvertOptions(
-                column_types={name: _TEXT for name in names}, check_utf8=False,
-                null_values=[], strings_can_be_null=False, quoted_strings_can_be_null=False))
-    except pa.ArrowException:
-        return None
-    # Arrow skips blank lines and joins quoted line breaks: then records and lines differ
-    # and the careful reader counts the lines.
-    if table.num_rows != _physical_lines(data):
-        return None
-    if quoted and not _last_line_agrees(data, start, sep,
-                                        [column[-1].as_py() for column in table.columns]):
-        return None
-    return table, sep
-
-
-def _arrow_records(table: pa.Table, sep: str) -> _Records:
-    """The records of an Arrow table of dictionary columns, freeing it column by column."""
-    columns = table.columns
-    del table
+    columns = [_Distinct() for _ in names]
+    n_records = 0
+    block, offset = first, start
+    del first
+    while block is not None:
+        if block.find(b"\x00", offset, end) >= 0 or not _is_utf8(block, offset, end):
+            return None  # the careful reader names the line
+        if block.startswith(UTF8_BOM, offset):
+            return None  # a line starting with U+FEFF: Arrow would drop it at a block's start
+        quoted = block.find(b'"', offset, end) >= 0
+        try:
+            table = pa_csv.read_csv(
+                pa.py_buffer(block)[offset:end], memory_pool=_POOL,
+                read_options=pa_csv.ReadOptions(column_names=names, use_threads=True),
+                parse_options=pa_csv.ParseOptions(
+                    delimiter=sep, quote_char='"', double_quote=True, escape_char=False,
+                    newlines_in_values=quoted, ignore_empty_lines=True),
+                convert_options=pa_csv.ConvertOptions(
+                    column_types={name: _TEXT for name in names}, check_utf8=False,
+                    null_values=[], strings_can_be_null=False,
+                    quoted_strings_can_be_null=False))
+        except pa.ArrowException:
+            return None
+        # Arrow skips blank lines and joins quoted line breaks: then records and lines
+        # differ and the careful reader counts the lines.
+        if table.num_rows != _physical_lines(block, offset, end):
+            return None
+        if quoted and not _last_line_agrees(block, offset, end, sep,
+                                            [column[-1].as_py() for column in table.columns]):
+            return None
+        n_records += table.num_rows
+        for distinct, column in zip(columns, table.columns):
+            distinct.add(column)
+        del table, block
+        block, end = next(blocks, (None, 0))
+        offset = 0
     codes, values = [], []
-    for i in range(len(columns)):
-        column = columns[i].unify_dictionaries(_POOL)  # one dictionary for every chunk
-        columns[i] = None  # done with: Arrow frees it
-        c = np.concatenate([chunk.indices.to_numpy() for chunk in column.chunks])
-        v = column.chunks[0].dictionary.to_numpy(zero_copy_only=False).astype(object)
-        del column
-        c, v = _stripped(c, v)
+    for distinct in columns:
+        c, v = distinct.codes_and_values()
         codes.append(c)
         values.append(v)
-    return _Records(codes, values, np.arange(1, len(codes[0]) + 1), sep)
+    return _Records(codes, values, np.arange(1, n_records + 1), sep)
 
 
 # ------------------------------------------------------------------------ the table
@@ -353,14 +423,14 @@ def _sep_name(sep: str) -> str:
 
 def _read_records(path: Path, label: str, required: list[str]) -> _Records:
     try:
+        with open(path, "rb") as fh:
+            records = _arrow_records(fh, label)
+        if records is not None:
+            return records
         data = path.read_bytes()
     except OSError as err:
         raise InputError(label, f"cannot be read ({err.strerror or err})") from None
-    parsed = _arrow_table(data, label)
-    if parsed is None:
-        return _careful_records(data, label, required)
-    del data  # the table holds the values: the file's bytes can go
-    return _arrow_records(*parsed)
+    return _careful_records(data, label, required)
 
 
 def present_only(codes: np.ndarray, values: np.ndarray) -> pd.Categorical:

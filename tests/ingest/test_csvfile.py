@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import io
 import random
 
 import pandas as pd
@@ -136,10 +137,13 @@ def test_missing_roster_and_sessions_are_reported_together(tmp_path):
 
 
 # ------------------------------------------- Arrow reader against the careful reader
-def _both_readers(data: bytes):
+def _arrow(data: bytes, label: str = "f.csv", block_bytes: int = csvfile.BLOCK_BYTES):
+    return csvfile._arrow_records(io.BytesIO(data), label, block_bytes)
+
+
+def _both_readers(data: bytes, block_bytes: int = csvfile.BLOCK_BYTES):
     """(Arrow's records or None where it hands over, the careful reader's records or error)."""
-    parsed = csvfile._arrow_table(data, "f.csv")
-    fast = csvfile._arrow_records(*parsed) if parsed is not None else None
+    fast = _arrow(data, block_bytes=block_bytes)
     try:
         careful = csvfile._careful_records(data, "f.csv", ["h"])
     except InputError as err:
@@ -170,8 +174,11 @@ def test_arrow_reads_every_file_it_accepts_as_the_careful_reader_does():
         text = sep.join(["h"] * n_cols) + newline + newline.join(rows)
         text += rng.choice([newline, "", newline + newline])
         data = text.encode(rng.choice(["utf-8", "utf-8", "utf-8-sig"]))
+        # whole files, and files cut into blocks of a few bytes (a block ends after a
+        # line break, so many blocks are one or two lines)
+        block_bytes = rng.choice([csvfile.BLOCK_BYTES, 1, 2, 5, 11])
         try:
-            fast, careful = _both_readers(data)
+            fast, careful = _both_readers(data, block_bytes)
         except InputError:
             continue  # binary: both readers refuse it the same way (_refuse_binary)
         if fast is None:
@@ -196,7 +203,47 @@ def test_arrow_reads_every_file_it_accepts_as_the_careful_reader_does():
     "participant_id,cohort\np01,a\n".encode("utf-16"),
 ])
 def test_arrow_hands_unusual_files_to_the_careful_reader(data):
-    assert csvfile._arrow_table(data, "roster.csv") is None
+    assert _arrow(data, "roster.csv") is None
+    assert _arrow(data, "roster.csv", block_bytes=4) is None
+
+
+def test_quoted_line_break_across_blocks_is_read_by_the_careful_reader(tmp_path):
+    data = b'participant_id,cohort\np01,"a\nb"\np02,b\n'
+    assert _arrow(data, "roster.csv", block_bytes=24) is None
+    table = _read(tmp_path, data)
+    assert table.frame["cohort"].tolist() == ["a\nb", "b"]
+    assert table.lines.tolist() == [2, 4]
+
+
+@pytest.mark.parametrize("data", [
+    b'participant_id,cohort\np01,a\np02,b\x00\n',  # a NUL byte past the first block
+    b'participant_id,cohort\np01,a\np02,caf\xe9\n',  # not UTF-8 past the first block
+    b'participant_id,cohort\np01,a\np02,b,c\n',  # a long row past the first block
+])
+def test_problems_past_the_first_block_go_to_the_careful_reader(tmp_path, data):
+    assert _arrow(data, "roster.csv", block_bytes=24) is None
+    with pytest.raises(InputError):  # and it names them
+        _read(tmp_path, data)
+
+
+def test_blocks_end_after_a_line_break():
+    data = b"h1,h2\r\na,b\r\nc,d\re,f\n" + b"x" * 30 + b"\ng,h"
+    blocks = [block[:end] for block, end in csvfile._blocks(io.BytesIO(data), 8)]
+    assert b"".join(blocks) == data
+    assert all(b.endswith(b"\n") for b in blocks[:-1])
+    assert b"x" * 30 + b"\n" in blocks  # a line longer than a block is one block
+
+
+def test_many_blocks_give_one_dictionary_per_column(tmp_path):
+    # 3000 rows in blocks of about 200 bytes: each column's distinct values are held
+    # once, and codes of every block point into them
+    rows = [f"p{i % 7:02d},s{i % 3},{i}" for i in range(3000)]
+    data = ("participant_id,session_id,second\n" + "\n".join(rows) + "\n").encode()
+    fast = _arrow(data, block_bytes=200)
+    careful = csvfile._careful_records(data, "f.csv", ["participant_id"])
+    assert _rows(fast) == _rows(careful)
+    assert fast.lines.tolist() == list(range(1, 3002))
+    assert sorted(fast.values[0]) == sorted(["participant_id"] + [f"p{i:02d}" for i in range(7)])
 
 
 def test_unclosed_quote_on_the_last_line_is_refused(tmp_path):

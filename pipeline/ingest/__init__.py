@@ -27,7 +27,7 @@ from pipeline.ingest import sessions as sessions_file
 from pipeline.ingest import survey as survey_file
 from pipeline.ingest import sync as sync_file
 from pipeline.ingest.csvfile import read_table
-from pipeline.ingest.media_log import read_media_log
+from pipeline.ingest.media_log import read_media_log, session_runs
 from pipeline.ingest.signal_files import find_signal_files, read_recording_checked
 from pipeline.types import SessionKey, Study, session_keys
 
@@ -224,7 +224,7 @@ def _coverage_warnings(roster: pd.DataFrame, sessions: pd.DataFrame, media_log: 
         warnings.append(f"roster.csv: {len(without)} participant(s) have no session: "
                         f"{', '.join(without[:10])}{' ...' if len(without) > 10 else ''}")
     keys = ["participant_id", "session_id"]
-    coded = set(media_log[keys].drop_duplicates().itertuples(index=False, name=None))
+    coded = set(session_runs(media_log))
     uncoded = [f"{p}/{s}" for p, s in sessions[keys].itertuples(index=False, name=None)
                if (p, s) not in coded]
     if uncoded:

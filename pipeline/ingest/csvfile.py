@@ -164,6 +164,11 @@ class _Records:
     separator: str
 
 
+def line_numbers(n: int) -> np.ndarray:
+    """Lines 1 to ``n``, as int32 (half the memory of int64) unless ``n`` does not fit."""
+    return np.arange(1, n + 1, dtype=np.int32 if n < np.iinfo(np.int32).max else np.int64)
+
+
 def _stripped(codes: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Strip spaces around each distinct value; values equal once stripped are merged."""
     stripped = np.asarray([v.strip() for v in values], dtype=object)
@@ -413,7 +418,7 @@ def _arrow_records(fh: BinaryIO, label: str, block_bytes: int = BLOCK_BYTES
         c, v = distinct.codes_and_values()
         codes.append(c)
         values.append(v)
-    return _Records(codes, values, np.arange(1, n_records + 1), sep)
+    return _Records(codes, values, line_numbers(n_records), sep)
 
 
 # ------------------------------------------------------------------------ the table
@@ -441,7 +446,9 @@ def present_only(codes: np.ndarray, values: np.ndarray) -> pd.Categorical:
     """
     used = np.bincount(codes, minlength=len(values)) > 0
     if not used.all():
-        codes = (np.cumsum(used) - 1).astype(np.int32)[codes]
+        remap = np.cumsum(used) - 1  # a value's position among those present
+        # in the smallest integer type that holds them, as the categorical keeps them
+        codes = remap.astype(np.min_scalar_type(max(int(used.sum()) - 1, 0)))[codes]
         values = values[used]
     return pd.Categorical.from_codes(codes, pd.Index(values, dtype=object))
 
@@ -487,13 +494,17 @@ def read_table(path: Path, label: str, required: list[str], *,
             blank[:] = False
             break
         blank &= c == empty[0]
-    kept = np.flatnonzero(~blank)
-    if not len(kept):  # only blank lines and spaces
-        raise InputError(label, "is empty", line=1,
-                         hint=f"the first line must name the columns: {', '.join(required)}")
-    header_line = int(records.lines[kept[0]])
-    names = [str(v[c[kept[0]]]).strip().lstrip("\ufeff").strip() for c, v in zip(codes, values)]
-    body = slice(1, None) if len(kept) == n else kept[1:]  # a slice avoids copying codes
+    if n and not blank.any():  # the usual case: no index of every row, no copies
+        first, body = 0, slice(1, None)
+    else:
+        kept = np.flatnonzero(~blank)
+        if not len(kept):  # only blank lines and spaces
+            raise InputError(label, "is empty", line=1,
+                             hint=f"the first line must name the columns: {', '.join(required)}")
+        first, body = int(kept[0]), kept[1:]
+    del blank
+    header_line = int(records.lines[first])
+    names = [str(v[c[first]]).strip().lstrip("\ufeff").strip() for c, v in zip(codes, values)]
     lines = records.lines[body]
 
     problems = ProblemCollector()
@@ -525,7 +536,7 @@ def read_table(path: Path, label: str, required: list[str], *,
     if frame.empty and not allow_no_rows:
         raise InputError(label, "has a header but no data rows", line=header_line + 1,
                          hint="add at least one row under the header")
-    return CsvTable(label=label, path=path, frame=frame, lines=np.asarray(lines, dtype=np.int64),
+    return CsvTable(label=label, path=path, frame=frame, lines=lines,
                     separator=sep, header_line=header_line)
 
 

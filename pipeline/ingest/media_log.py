@@ -112,8 +112,10 @@ def _session_rows(table: CsvTable, sessions: pd.DataFrame,
                   problems: ProblemCollector) -> tuple[np.ndarray, np.ndarray]:
     """Position of each row's session in ``sessions`` (-1 if none) and its duration."""
     pos = session_rows(table, sessions, problems, "media log")
-    # a row of no session (pos -1) takes the appended 0
-    duration = np.append(sessions["duration_s"].to_numpy(dtype=np.int64), 0)[pos]
+    # a row of no session (pos -1) takes the appended 0; int32 holds 68 years of seconds
+    durations = sessions["duration_s"].to_numpy(dtype=np.int64)
+    small = not len(durations) or int(durations.max()) < np.iinfo(np.int32).max
+    duration = np.append(durations, 0).astype(np.int32 if small else np.int64)[pos]
     return pos, duration
 
 
@@ -467,20 +469,55 @@ def _sort_key(log: pd.DataFrame) -> np.ndarray | None:
 
     Equal keys mean the same participant, session, coder and second.
     """
-    key = np.zeros(len(log), dtype=np.int64)
-    span = 1
-    for column in reversed(ORDER):
+    columns, sizes = [], []
+    for column in ORDER:
         if column == "second":
-            values = log[column].to_numpy().astype(np.int64)
-            size = int(values.max()) + 1 if len(values) else 1
+            values = log[column].to_numpy()
+            sizes.append(int(values.max()) + 1 if len(values) else 1)
         else:
-            values = log[column].cat.codes.to_numpy().astype(np.int64)
-            size = len(log[column].cat.categories)
-        if span * size >= 2**62:
-            return None
-        key += values * span
-        span *= size
+            values = log[column].cat.codes.to_numpy()
+            sizes.append(len(log[column].cat.categories))
+        columns.append(values)
+    if np.prod([float(n) for n in sizes]) >= 2**62:
+        return None
+    # Horner's scheme in place: key = ((p * n_s + s) * n_c + c) * n_sec + second, with no
+    # temporary array of every row
+    key = columns[0].astype(np.int64)
+    for values, size in zip(columns[1:], sizes[1:]):
+        key *= size
+        np.add(key, values, out=key, casting="unsafe")
     return key
+
+
+@dataclass
+class SessionRun:
+    """The rows of one session in a log sorted by :data:`ORDER`: ``rows`` (a slice), and
+    whether two or more coders coded it."""
+
+    rows: slice
+    several_coders: bool
+
+
+def session_runs(log: pd.DataFrame) -> dict[tuple[str, str], SessionRun]:
+    """Each (participant_id, session_id) of a log as :func:`read_media_log` returns it
+    (sorted by :data:`ORDER`, so each session's rows are one run), found from where
+    the ID codes change: no hashing or index arrays of every row, as a group-by needs.
+    """
+    n = len(log)
+    if not n:
+        return {}
+    p, s, c = (log[k].cat.codes.to_numpy() for k in ("participant_id", "session_id", "coder"))
+    new_session = (p[1:] != p[:-1]) | (s[1:] != s[:-1])
+    starts = np.concatenate([[0], np.flatnonzero(new_session) + 1])
+    ends = np.append(starts[1:], n)
+    del new_session
+    pids, sids = log["participant_id"].cat.categories, log["session_id"].cat.categories
+    runs = {(pids[p[a]], sids[s[a]]): SessionRun(slice(int(a), int(b)), bool(c[a] != c[b - 1]))
+            for a, b in zip(starts, ends)}
+    if len(runs) < len(starts):  # only if the log were not sorted: a bug, not user input
+        raise RuntimeError("session_runs needs the media log sorted by participant and "
+                           "session, as read_media_log returns it")
+    return runs
 
 
 def _empty_log() -> pd.DataFrame:

@@ -167,8 +167,8 @@ def session_rows(table: CsvTable, sessions: pd.DataFrame, problems: ProblemColle
     inverse, pairs = pair_codes(table.frame["participant_id"], table.frame["session_id"])
     where = {pair: i for i, pair in enumerate(
         zip(sessions["participant_id"], sessions["session_id"]))}
-    pos = np.asarray([where.get(pair, -1) for pair in pairs], dtype=np.int64)
-    pos = pos[inverse] if len(pos) else np.zeros(len(table), dtype=np.int64)
+    pos = np.asarray([where.get(pair, -1) for pair in pairs], dtype=np.int32)
+    pos = pos[inverse] if len(pos) else np.zeros(len(table), dtype=np.int32)
     missing = pos < 0
     known_p = table.frame["participant_id"].isin(set(sessions["participant_id"])).to_numpy()
     report(table, "participant_id", missing & ~known_p, problems,

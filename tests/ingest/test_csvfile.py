@@ -5,6 +5,7 @@ from __future__ import annotations
 import io
 import random
 
+import numpy as np
 import pandas as pd
 import pytest
 from ingest_builders import ROSTER, assert_names, load, refusal, write_study
@@ -276,3 +277,16 @@ def test_categorical_frame_holds_the_same_strings(tmp_path):
         assert sorted(cats.frame[name].cat.categories) == sorted(set(text.frame[name]))
     assert text.frame["cohort"].tolist() == ["alpha", "beta", "alpha"]
     assert text.frame["note"].tolist() == ["", "x", "participant_id"]
+
+
+def test_big_table_is_held_compactly(tmp_path):
+    # line numbers as int32 and category codes in the smallest type (a media log of
+    # millions of rows is held by the runner while the run goes on)
+    rows = "".join(f"p{i % 3},s1,{i}\n" for i in range(1000))
+    path = tmp_path / "media_log.csv"
+    path.write_text("participant_id,session_id,second\n" + rows)
+    table = read_table(path, "media_log.csv", ["participant_id"], categorical=True)
+    assert table.lines.dtype == np.int32 and table.lines[[0, -1]].tolist() == [2, 1001]
+    assert table.frame["participant_id"].cat.codes.dtype == np.int8
+    assert table.frame["second"].cat.codes.dtype == np.int16
+    assert table.frame["participant_id"].astype(object).tolist()[:4] == ["p0", "p1", "p2", "p0"]

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import random
 
+import numpy as np
 import pandas as pd
 import pytest
 from ingest_builders import assert_names, load, refusal, second_log, write_study
@@ -355,3 +356,44 @@ def test_bad_in_view_cells_are_reported_in_the_order_they_appear(tmp_path):
     err = refusal(tmp_path)
     assert [(p.line, p.value) for p in err.problems] == [(3, "radio"), (5, "radio"),
                                                         (4, "in_view")]
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_sort_key_orders_as_the_columns_do(tmp_path, seed):
+    # The int64 key made in place (Horner's scheme) must order rows exactly as sorting
+    # by participant, session, coder and second does; checked against numpy's lexsort.
+    write_study(tmp_path, media_log=_shuffled_log(seed))
+    log = load(tmp_path).media_log.sample(frac=1, random_state=seed)
+    key = media_log._sort_key(log)
+    columns = [log[c].cat.codes.to_numpy() if c != "second" else log[c].to_numpy()
+               for c in media_log.ORDER]
+    assert (np.argsort(key, kind="stable") == np.lexsort(columns[::-1])).all()
+
+
+def test_sort_key_gives_up_where_an_int64_could_overflow():
+    n = 3
+    log = pd.DataFrame({c: pd.Categorical([f"{c}{i}" for i in range(n)])
+                        for c in ("participant_id", "session_id", "coder")})
+    log["second"] = np.array([0, 1, 2**61], dtype=np.int64)
+    assert media_log._sort_key(log) is None  # 3 * 3 * 3 * (2**61 + 1) >= 2**62
+
+
+def test_session_runs_find_each_session_and_its_coders(tmp_path):
+    write_study(tmp_path, media_log=_shuffled_log(5))
+    log = load(tmp_path).media_log
+    runs = media_log.session_runs(log)
+    plain = log.astype({"participant_id": object, "session_id": object, "coder": object})
+    expected = plain.groupby(["participant_id", "session_id"])  # the slow way, to compare
+    assert sorted(runs) == sorted(expected.groups)
+    for key, rows in expected.indices.items():
+        assert list(range(runs[key].rows.start, runs[key].rows.stop)) == list(rows)
+        assert runs[key].several_coders == (plain.iloc[rows]["coder"].nunique() > 1)
+    assert any(r.several_coders for r in runs.values())  # the shuffled log has coder_b
+    assert media_log.session_runs(log.iloc[:0]) == {}
+
+
+def test_session_runs_refuse_a_log_out_of_order(tmp_path):
+    write_study(tmp_path, media_log=second_log())
+    log = load(tmp_path).media_log
+    with pytest.raises(RuntimeError, match="sorted"):
+        media_log.session_runs(log.sample(frac=1, random_state=0))  # sessions interleaved

@@ -18,6 +18,7 @@ does I/O for `screenweave run`. The order is:
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import pickle
 import platform
@@ -39,6 +40,7 @@ from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
 from pipeline.execution import Outcome, TaskPool, keep_freed_memory, return_freed_memory
 from pipeline.ingest import StudyHead, read_recording_checked, read_study_head, read_study_rest
+from pipeline.ingest.media_log import session_runs
 from pipeline.metrics.arousal import add_arousal, arousal_source
 from pipeline.outputs import (OutputFolder, atomic_write, csv_bytes, row_blocks, sha256_file,
                               write_parquet)
@@ -278,23 +280,15 @@ def session_inputs(study: Study, cfg: Config, recordings: list[RecordingInputs],
     notes: list[str] = []
     roster = study.roster.set_index("participant_id")["cohort"]
     log = study.media_log
-    # the rows of each session, by position (observed=True: the log's ID columns may be
-    # categorical, and only the pairs seen are wanted)
-    rows_of = log.groupby(["participant_id", "session_id"], sort=False, observed=True).indices
-    coded = log[["second", "in_view", "attended", "coder"]]
-    codes_only = coded[["second", "in_view", "attended"]]
-    coder_col = log["coder"]
+    runs = session_runs(log)  # each session's rows are one run of the sorted log
     out = []
     for rec in recordings:
         key = rec.key
-        rows = rows_of.get((key.participant_id, key.session_id))
-        if rows is None:
-            rows = np.empty(0, dtype=np.intp)
-        # a media log written session by session holds each session in one run of
-        # rows, which is cut as a view; otherwise the rows are gathered
-        run_of_rows = len(rows) > 0 and rows[-1] - rows[0] + 1 == len(rows)
-        pick = slice(rows[0], rows[-1] + 1) if run_of_rows else rows
-        session_coders = coder_col.iloc[pick]
+        run = runs.get((key.participant_id, key.session_id))
+        pick = run.rows if run is not None else slice(0, 0)
+        n_rows = pick.stop - pick.start
+        rows = log.iloc[pick]  # a view: only the columns taken below are copied
+        session_coders = rows["coder"]
         coders = sorted(str(c) for c in _distinct(session_coders))
         coder = ""
         if coders:
@@ -306,9 +300,9 @@ def session_inputs(study: Study, cfg: Config, recordings: list[RecordingInputs],
                                              else " (first in sorted order)"))
         # the code columns stay categorical, as ingest made them (compact to ship to
         # workers; the stages take either dtype)
-        if all_coders is not None and len(rows):
-            all_coders[len(out)] = coded.iloc[pick]
-        codes = codes_only.iloc[pick]
+        if all_coders is not None and n_rows:
+            all_coders[len(out)] = rows[["second", "in_view", "attended", "coder"]]
+        codes = rows[["second", "in_view", "attended"]]
         if len(coders) > 1:
             codes = codes[(session_coders == coder).to_numpy()]
         if not codes["second"].is_monotonic_increasing:
@@ -548,8 +542,10 @@ class Sessions:
             self.metrics_start = time.perf_counter()
         for i in done:
             inp = self.inputs[i]
+            # the task takes the session's rows of every coder: this process needs
+            # them no more
             task = FinishTask(inp, mean, sd, self.cfg, cache_file=self.cache_file[i],
-                              agreement_codes=(self.all_coders.get(i)
+                              agreement_codes=(self.all_coders.pop(i, None)
                                                if self.all_coders is not None else None))
             if self.pool.local_files:
                 task.timeline_file = self.outdir.path(f"timeline/{inp.key.stem()}.parquet")
@@ -595,6 +591,9 @@ class Sessions:
             return
         fin: Finished = outcome.value
         self.finished[i] = fin
+        # the session's codes are in its timeline now: keep what the study tables need
+        self.inputs[i] = dataclasses.replace(self.inputs[i],
+                                             codes=self.inputs[i].codes.iloc[:0])
         rel = f"timeline/{fin.key.stem()}.parquet"
         if fin.timeline is not None:  # cluster run: write it here
             self.outdir.parquet(rel, fin.timeline, "align")
@@ -660,6 +659,9 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
             check_reserved_code(study.media_log)
         all_coders: dict[int, pd.DataFrame] | None = {} if multi_coded else None
         inputs, coder_notes = session_inputs(study, cfg, recs, all_coders)
+        # every row of the log the run uses is now in the sessions' inputs (copies):
+        # the study's own copy can go
+        study = dataclasses.replace(study, media_log=study.media_log.iloc[:0])
         return_freed_memory()  # ingest's temporary arrays
         if pool.runs_here:
             # Serial runs do the per-session work in this process: from here on keep
@@ -936,9 +938,7 @@ def _survey_task(args: tuple) -> tuple[pd.DataFrame, dict]:
 
 def _multi_coded(study: Study) -> bool:
     """True when some session of the media log is coded by two or more coders."""
-    per_session = study.media_log.groupby(["participant_id", "session_id"],
-                                          observed=True)["coder"].nunique()
-    return bool((per_session > 1).any())
+    return any(run.several_coders for run in session_runs(study.media_log).values())
 
 
 def _agreement(study: Study, cfg: Config, outdir: OutputFolder, methods: dict,

@@ -58,6 +58,27 @@ STATES = ("none", "single", "multi")
 TEXT = pd.StringDtype("pyarrow")
 
 
+def shared_text(values: np.ndarray) -> np.ndarray:
+    """``values`` as an object array in which rows of equal text share one ``str``.
+
+    The metric tables' text columns (IDs, platforms, reasons) repeat a few values over
+    hundreds of rows per session. Made by numpy's casts they hold one string object
+    per row; shared, they take a tenth of the memory in the runner, which keeps every
+    session's rows for the study tables, and in the pickles that carry them from the
+    workers (pickle writes an object once however often it recurs).
+    """
+    codes, uniques = pd.factorize(np.asarray(values, dtype=object), use_na_sentinel=False)
+    return np.asarray(uniques, dtype=object)[codes]
+
+
+def constant_text(value: str, n: int) -> np.ndarray:
+    """An object array of ``n`` rows sharing the one string ``value`` (numpy's
+    ``np.full(n, value, dtype=object)`` makes a string per row)."""
+    out = np.empty(n, dtype=object)
+    out.fill(value)
+    return out
+
+
 @dataclass(frozen=True)
 class SessionKey:
     participant_id: str

@@ -17,7 +17,7 @@ from pipeline.metrics.arousal import FLAG_NOT_STANDARDISED, compression_ratio, s
 from pipeline.metrics.budget import time_budget
 from pipeline.metrics.dwell import km_median
 from pipeline.metrics.switching import find_bouts, find_switches
-from pipeline.types import TIMELINE_COLUMNS, SessionInputs, SessionMetrics
+from pipeline.types import TIMELINE_COLUMNS, SessionInputs, SessionMetrics, constant_text
 
 #: The session has less multi-platform time than ``[switching] min_multi_minutes``:
 #: its switch rate is left empty (and out of the models).
@@ -36,7 +36,7 @@ _REQUIRED = ("second", "coded", "in_view", "attended", "n_in_view", "state", "ed
 def _keyed(table: pd.DataFrame, inputs: SessionInputs) -> pd.DataFrame:
     """``table`` with the KEY_COLUMNS put in front (a new frame with a fresh index)."""
     values = (inputs.key.participant_id, inputs.key.session_id, inputs.cohort)
-    keys = pd.DataFrame({col: np.full(len(table), value, dtype=object)
+    keys = pd.DataFrame({col: constant_text(value, len(table))
                          for col, value in zip(KEY_COLUMNS, values)})
     return pd.concat([keys, table.reset_index(drop=True)], axis=1)
 

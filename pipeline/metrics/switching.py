@@ -15,6 +15,7 @@ import pandas as pd
 
 from pipeline.config import DwellSettings, SwitchSettings
 from pipeline.errors import StageError
+from pipeline.types import shared_text
 
 #: Columns of :func:`find_bouts`' result, in order.
 BOUT_COLUMNS = ("platform", "start_s", "end_s", "duration_s", "censored", "censor_reason",
@@ -169,15 +170,15 @@ def find_bouts(timeline: pd.DataFrame, cfg: SwitchSettings, dwell: DwellSettings
         invalid_side = (has_before & ~valid[before_i]) | (has_after & ~valid[after_i])
     else:
         invalid_side = np.zeros(len(b_start), dtype=bool)
-    reason = np.select([edge, uncoded_side, invalid_side], list(CENSOR_REASONS), "").astype(object)
+    reason = np.select([edge, uncoded_side, invalid_side], list(CENSOR_REASONS), "")
 
     return pd.DataFrame({
-        "platform": b_platform.astype(object),
+        "platform": shared_text(b_platform),
         "start_s": b_start.astype(np.int64),
         "end_s": b_end.astype(np.int64),
         "duration_s": (b_end - b_start).astype(np.int64),
         "censored": reason != "",
-        "censor_reason": reason,
+        "censor_reason": shared_text(reason),
         "merged_from": merged_from,
     })
 

@@ -22,8 +22,11 @@ Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
     .venv/bin/python benchmarks/scaling.py --repeat 5 # medians of 5 runs (default 3)
     .venv/bin/python benchmarks/scaling.py --keep /tmp/w --reuse --only large
                                       # re-measure one size on studies made before
+    .venv/bin/python benchmarks/scaling.py --only small --only xlarge
+                                      # memory from 12 to 240 sessions (not a target)
 
-Partial runs (--quick, --only) write benchmarks/results/scaling_partial.json.
+Partial runs write benchmarks/results/scaling_quick.json (--quick) or
+scaling_<sizes>.json (--only; e.g. scaling_small_xlarge.json).
 """
 
 from __future__ import annotations
@@ -47,6 +50,9 @@ RESULTS = ROOT / "benchmarks" / "results"
 #: (participants per cohort, sessions per participant): 2 cohorts each
 SIZES = {"small": (3, 2), "medium": (10, 2), "large": (30, 2)}
 QUICK = {"small": (1, 2), "medium": (2, 2)}
+#: Twice the largest size, measured only on request (--only xlarge): how memory goes on
+#: past the three sizes of the targets.
+EXTRA = {"xlarge": (60, 2)}
 
 
 PAGE = os.sysconf("SC_PAGE_SIZE")
@@ -235,16 +241,17 @@ def main() -> None:
                     help="with --keep: reuse studies already made there by an earlier run")
     ap.add_argument("--repeat", type=int, default=3,
                     help="measure each run this many times and report the median")
-    ap.add_argument("--only", choices=["small", "medium", "large"], action="append",
-                    help="measure only these sizes (repeatable)")
+    ap.add_argument("--only", choices=[*SIZES, *EXTRA], action="append",
+                    help="measure only these sizes (repeatable; xlarge, 240 sessions, is "
+                    "measured only when named)")
     args = ap.parse_args()
-    sizes = QUICK if args.quick else SIZES
+    sizes = QUICK if args.quick else SIZES | EXTRA
     hours = 0.5 if args.quick else args.hours
     work = args.keep or Path(tempfile.mkdtemp(prefix="screenweave-scaling-"))
     work.mkdir(parents=True, exist_ok=True)
     rows = []
     for name, (ppc, sessions) in sizes.items():
-        if args.only and name not in args.only:
+        if (args.only and name not in args.only) or (not args.only and name in EXTRA):
             continue
         print(f"== {name}: {2 * ppc * sessions} sessions of {hours} h", flush=True)
         rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work,
@@ -266,8 +273,12 @@ def main() -> None:
         / rows[0]["peak_pss_mb_workers2"],
     }
     RESULTS.mkdir(parents=True, exist_ok=True)
-    partial = args.quick or bool(args.only)
-    target = RESULTS / ("scaling_partial.json" if partial else "scaling.json")
+    if args.quick:
+        target = RESULTS / "scaling_quick.json"
+    elif args.only:
+        target = RESULTS / f"scaling_{'_'.join(r['size'] for r in rows)}.json"
+    else:
+        target = RESULTS / "scaling.json"
     target.write_text(json.dumps(result, indent=2) + "\n")
     print("\n| size | sessions | participant-hours | workers 1 (s) | workers 2 (s) | speedup | "
           "participant-h/s (2 workers) | peak RSS 2 workers (MB) | peak PSS 2 workers (MB) | "

@@ -38,7 +38,8 @@ from pipeline.align.clock import ClockMap
 from pipeline.align.timeline import align_signals, join_codes
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
-from pipeline.execution import Outcome, TaskPool, keep_freed_memory, return_freed_memory
+from pipeline.execution import (Outcome, TaskPool, keep_freed_memory, map_big_arrays,
+                                 return_freed_memory)
 from pipeline.ingest import StudyHead, read_recording_checked, read_study_head, read_study_rest
 from pipeline.ingest.media_log import session_runs
 from pipeline.metrics.arousal import add_arousal, arousal_source
@@ -641,6 +642,7 @@ def _run(pool: TaskPool, folder: Path, cfg: Config, cfg_file: Path | None, out: 
     # sessions have their signals), so they add up to more than total_s.
     timings: dict[str, float] = {}
     _arrow_threads(pool.workers if pool.local_files else 1)
+    map_big_arrays()  # the study's big temporary arrays go back to the OS when freed
     head = read_study_head(folder, cfg)
     recs = recording_inputs(head)
     total = len(recs)

@@ -567,7 +567,10 @@ def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None
     if not parts:
         return _empty_log(), vocab.seen, [path for path, _ in files]
     _shared_categories([p.frame for p in parts])
-    log = pd.concat([p.frame[COLUMNS] for p in parts], ignore_index=True)
+    if len(parts) == 1 and list(parts[0].frame.columns) == COLUMNS:
+        log = parts[0].frame.copy(deep=False)  # one file: its rows are not copied
+    else:
+        log = pd.concat([p.frame[COLUMNS] for p in parts], ignore_index=True)
     log["second"] = _compact_seconds(log["second"])
     key = _sort_key(log)
     if key is None:  # more distinct keys than an int64 holds: let pandas do it
@@ -579,6 +582,9 @@ def read_media_log(root: Path, sessions: pd.DataFrame, declared: set[str] | None
         ordered = key if order is None else key[order]
         if (ordered[1:] == ordered[:-1]).any():
             _duplicates(parts, problems)
+        del key, ordered
         if order is not None:
             log = log.take(order)
-    return log.reset_index(drop=True), vocab.seen, [path for path, _ in files]
+    if not log.index.equals(pd.RangeIndex(len(log))):
+        log = log.reset_index(drop=True)
+    return log, vocab.seen, [path for path, _ in files]

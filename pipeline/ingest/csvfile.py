@@ -2,7 +2,7 @@
 
 Every table of a study folder goes through :func:`read_table`, which
 
-* reads the bytes once and never writes (the user's files are left as they are);
+* only reads, never writes (the user's files are left as they are);
 * accepts UTF-8 with or without a byte-order mark, and UTF-16 with a byte-order mark
   (what some spreadsheet programs call "Unicode text");
 * refuses binary files (Parquet, Excel workbooks, garbage) with a clear error;
@@ -16,10 +16,11 @@ Every table of a study folder goes through :func:`read_table`, which
   stored, stripped and checked once.
 
 Files are parsed by Arrow's CSV reader (fast, and it keeps each column's distinct
-values once). Arrow is stricter or more lenient than the careful reader in a few
-corners (blank lines, rows with too few values, quoted line breaks, a quote left open
-at the very end, other encodings); a file that meets one of them is read again by
-pandas' reader, which gives the line numbers and messages in every case. Both readers
+values once), in blocks of whole lines, so a big file never sits in memory whole.
+Arrow is stricter or more lenient than the careful reader in a few corners (blank
+lines, rows with too few values, quoted line breaks, a quote left open at the very
+end, other encodings); a file that meets one of them is read again, whole, by pandas'
+reader, which gives the line numbers and messages in every case. Both readers
 give the same table for every file they both accept (tests/ingest/test_csvfile.py
 checks this on many awkward files).
 

@@ -11,8 +11,9 @@ from __future__ import annotations
 import gc
 import importlib
 import os
+import queue
 import traceback
-from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures import Future, ProcessPoolExecutor
 from dataclasses import dataclass
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
@@ -174,6 +175,11 @@ class TaskPool:
         self.workers, self.cluster, self.preload = workers, cluster, tuple(preload)
         self._pool: ProcessPoolExecutor | None = None
         self._client = None
+        # local pool: each task's future is put here as it finishes, so that waiting
+        # for the next one costs the same with ten tasks in flight or ten thousand
+        # (concurrent.futures.wait looks at every pending future on every call)
+        self._finished: queue.SimpleQueue = queue.SimpleQueue()
+        self._unclaimed: set[Future] = set()
 
     @property
     def local_files(self) -> bool:
@@ -229,24 +235,45 @@ class TaskPool:
         if self._client is not None:
             return self._client.submit(_call, fn, arg, pure=False)
         if self._pool is not None:
-            return self._pool.submit(_call, fn, arg)
+            future = self._pool.submit(_call, fn, arg)
+            future.add_done_callback(self._finished.put)
+            return future
         return _Deferred(fn, arg)
 
     def next_done(self, futures: Iterable) -> list:
-        """Wait until at least one of ``futures`` has finished; return those that have."""
+        """Wait until at least one of ``futures`` (given by :meth:`start_task`) has
+        finished; return those that have."""
+        if self._pool is not None:
+            return self._next_finished(futures)
         futures = list(futures)
         if self._client is not None:
             from distributed import wait as dask_wait
 
             return list(dask_wait(futures, return_when="FIRST_COMPLETED").done)
-        if self._pool is not None:
-            return list(wait(futures, return_when=FIRST_COMPLETED)[0])
         done = [f for f in futures if f.finished]
         if not done:  # serial: run the first task queued that has not run
             first = min(futures, key=lambda f: f.order)
             first.run()
             done = [first]
         return done
+
+    def _next_finished(self, futures: Iterable) -> list:
+        """Local pool: the finished futures among ``futures``, waiting for one if none
+        has finished yet (futures finished but not asked for are kept for later)."""
+        wanted = futures if isinstance(futures, (dict, set, frozenset)) else set(futures)
+        if not wanted:
+            return []
+        while True:
+            done = [f for f in self._unclaimed if f in wanted]
+            if done:
+                self._unclaimed.difference_update(done)
+                return done
+            self._unclaimed.add(self._finished.get())  # blocks until a task finishes
+            while True:
+                try:
+                    self._unclaimed.add(self._finished.get_nowait())
+                except queue.Empty:
+                    break
 
     def cancel(self, futures: Iterable) -> None:
         """Drop queued tasks that have not started (running ones finish)."""

@@ -86,3 +86,19 @@ def test_pool_futures_finish_with_outcomes():
                 got[pending.pop(fut)] = fut.result()
     assert {x: o.value for x, o in got.items() if o.ok} == {0: 0, 1: 1, 2: 4, 4: 16}
     assert "bad row" in got[3].error and "ZeroDivisionError" in got[5].error
+
+
+def test_pool_keeps_finished_futures_until_asked_for():
+    # next_done on a local pool takes finished futures from a queue: one finished but
+    # not asked for is kept and given when it is asked for
+    from pipeline.execution import TaskPool
+
+    with TaskPool(2) as pool:
+        first = pool.start_task(square_or_fail, 2)
+        others = [pool.start_task(square_or_fail, x) for x in (4, 6, 7)]
+        got = []
+        while len(got) < len(others):
+            got += pool.next_done(set(others) - set(got))
+        assert sorted(f.result().value for f in got) == [16, 36, 49]
+        assert pool.next_done([first]) == [first] and first.result().value == 4
+        assert pool.next_done([]) == []

@@ -175,11 +175,13 @@ class TaskPool:
         self.workers, self.cluster, self.preload = workers, cluster, tuple(preload)
         self._pool: ProcessPoolExecutor | None = None
         self._client = None
-        # local pool: each task's future is put here as it finishes, so that waiting
-        # for the next one costs the same with ten tasks in flight or ten thousand
-        # (concurrent.futures.wait looks at every pending future on every call)
+        # local pool: each task's future is put here as it finishes (on a cluster,
+        # distributed.as_completed does the same), so that waiting for the next one
+        # costs the same with ten tasks in flight or ten thousand (the libraries' wait
+        # functions look at every pending future on every call)
         self._finished: queue.SimpleQueue = queue.SimpleQueue()
-        self._unclaimed: set[Future] = set()
+        self._unclaimed: set = set()
+        self._completions = None  # cluster: a distributed.as_completed of the tasks
 
     @property
     def local_files(self) -> bool:
@@ -233,7 +235,13 @@ class TaskPool:
         they were queued)."""
         self.start()
         if self._client is not None:
-            return self._client.submit(_call, fn, arg, pure=False)
+            future = self._client.submit(_call, fn, arg, pure=False)
+            if self._completions is None:
+                from distributed import as_completed
+
+                self._completions = as_completed(loop=self._client.loop)
+            self._completions.add(future)
+            return future
         if self._pool is not None:
             future = self._pool.submit(_call, fn, arg)
             future.add_done_callback(self._finished.put)
@@ -243,13 +251,9 @@ class TaskPool:
     def next_done(self, futures: Iterable) -> list:
         """Wait until at least one of ``futures`` (given by :meth:`start_task`) has
         finished; return those that have."""
-        if self._pool is not None:
+        if self._pool is not None or self._client is not None:
             return self._next_finished(futures)
         futures = list(futures)
-        if self._client is not None:
-            from distributed import wait as dask_wait
-
-            return list(dask_wait(futures, return_when="FIRST_COMPLETED").done)
         done = [f for f in futures if f.finished]
         if not done:  # serial: run the first task queued that has not run
             first = min(futures, key=lambda f: f.order)
@@ -258,8 +262,9 @@ class TaskPool:
         return done
 
     def _next_finished(self, futures: Iterable) -> list:
-        """Local pool: the finished futures among ``futures``, waiting for one if none
-        has finished yet (futures finished but not asked for are kept for later)."""
+        """Local pool or cluster: the finished futures among ``futures``, waiting for one
+        if none has finished yet (futures finished but not asked for are kept for
+        later)."""
         wanted = futures if isinstance(futures, (dict, set, frozenset)) else set(futures)
         if not wanted:
             return []
@@ -268,6 +273,9 @@ class TaskPool:
             if done:
                 self._unclaimed.difference_update(done)
                 return done
+            if self._client is not None:  # blocks until a task finishes
+                self._unclaimed.update(self._completions.next_batch(block=True))
+                continue
             self._unclaimed.add(self._finished.get())  # blocks until a task finishes
             while True:
                 try:

@@ -363,7 +363,7 @@ def _arrow_records(fh: BinaryIO, label: str, block_bytes: int = BLOCK_BYTES
     first, end = next(blocks, (b"", 0))
     if first.startswith(UTF16_BOMS):
         return None
-    _refuse_binary(first[:end] if end < len(first) else first, label)
+    _refuse_binary(first, label)  # it starts the file: a NUL's line is counted right
     start = len(UTF8_BOM) if first.startswith(UTF8_BOM) else 0
     if first.startswith(UTF8_BOM, start):
         return None  # a second byte-order mark (Arrow would drop it too)

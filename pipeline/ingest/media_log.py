@@ -112,10 +112,9 @@ def _session_rows(table: CsvTable, sessions: pd.DataFrame,
                   problems: ProblemCollector) -> tuple[np.ndarray, np.ndarray]:
     """Position of each row's session in ``sessions`` (-1 if none) and its duration."""
     pos = session_rows(table, sessions, problems, "media log")
-    # a row of no session (pos -1) takes the appended 0; int32 holds 68 years of seconds
-    durations = sessions["duration_s"].to_numpy(dtype=np.int64)
-    small = not len(durations) or int(durations.max()) < np.iinfo(np.int32).max
-    duration = np.append(durations, 0).astype(np.int32 if small else np.int64)[pos]
+    # a row of no session (pos -1) takes the appended 0
+    durations = np.append(sessions["duration_s"].to_numpy(dtype=np.int64), 0)
+    duration = _compact_seconds(durations)[pos]
     return pos, duration
 
 
@@ -526,9 +525,9 @@ def _empty_log() -> pd.DataFrame:
                          for c in COLUMNS})
 
 
-def _compact_seconds(seconds: pd.Series) -> np.ndarray:
+def _compact_seconds(seconds: pd.Series | np.ndarray) -> np.ndarray:
     """Seconds as int32 (half the memory of int64) unless one does not fit (68 years)."""
-    values = seconds.to_numpy()
+    values = np.asarray(seconds)
     fits = not len(values) or int(values.max()) < np.iinfo(np.int32).max
     return values.astype(np.int32 if fits else np.int64)
 

@@ -38,8 +38,8 @@ from pipeline.align.clock import ClockMap
 from pipeline.align.timeline import align_signals, join_codes
 from pipeline.config import Config, resolve_study
 from pipeline.errors import ScreenweaveError, StageError
-from pipeline.execution import (Outcome, TaskPool, keep_freed_memory, map_big_arrays,
-                                 return_freed_memory)
+from pipeline.execution import (STAGE_MODULES, Outcome, TaskPool, keep_freed_memory,
+                                 map_big_arrays, return_freed_memory)
 from pipeline.ingest import StudyHead, read_recording_checked, read_study_head, read_study_rest
 from pipeline.ingest.media_log import session_runs
 from pipeline.metrics.arousal import add_arousal, arousal_source
@@ -51,17 +51,6 @@ from pipeline.types import (RecordingInputs, SessionInputs, SessionKey, SessionM
 CACHE_DIR = "cache/prepare"
 #: A session table this long or longer is turned into CSV text by several workers.
 CSV_BLOCK_ROWS = 20_000
-
-#: The stage modules that import scipy and statsmodels (about a second on first
-#: import), and the statsmodels model the cohort comparison fits first (imported
-#: there on first use). This module imports them inside the task functions that use
-#: them, and each local worker imports them as it starts: with workers, the runner's
-#: process never needs them (every task that does runs on the pool), and the
-#: workers' imports run while the runner reads the study.
-STAGE_MODULES = ("pipeline.signals", "pipeline.metrics.session",
-                 "pipeline.metrics.switch_locked", "pipeline.models",
-                 "statsmodels.genmod.generalized_estimating_equations")
-
 
 # ----------------------------------------------------------------- per-session tasks
 @dataclass
@@ -626,9 +615,8 @@ def run_study(target: str | Path, out: str | Path, *, workers: int = 1,
     """Run the whole pipeline on a study folder or study .toml; write OUT."""
     started = time.perf_counter()
     folder, cfg, cfg_file = resolve_study(target)
-    # Local workers start before the study is read, so they do not inherit its tables,
-    # and import the stage modules while the runner reads it; one pool serves every
-    # phase.
+    # Local workers are forked from the fork server, which imports the stage modules
+    # while the runner reads the study; one pool serves every phase.
     with TaskPool(workers, cluster, preload=STAGE_MODULES) as pool:
         return _run(pool, folder, cfg, cfg_file, out, started=started, keep_going=keep_going,
                     fresh=fresh, quiet=quiet, report=report)

@@ -102,3 +102,50 @@ def test_pool_keeps_finished_futures_until_asked_for():
         assert sorted(f.result().value for f in got) == [16, 36, 49]
         assert pool.next_done([first]) == [first] and first.result().value == 4
         assert pool.next_done([]) == []
+
+
+def wait_for_file(path):
+    """A task that notes it has started, then runs until ``path`` exists (at most 60 s)
+    and gives its name."""
+    import os
+    import time
+    from pathlib import Path
+
+    path = Path(path)
+    (path.parent / f"started_{os.getpid()}").touch()
+    for _ in range(6000):
+        if path.exists():
+            return path.name
+        time.sleep(0.01)
+    raise TimeoutError(path)
+
+
+def test_pool_cancel_drops_queued_tasks_and_running_ones_finish(tmp_path):
+    # A local pool's tasks reach the workers through a hand-off thread; cancelling must
+    # still drop a task not yet started and let a running one finish with its outcome.
+    import time
+
+    from pipeline.execution import TaskPool
+
+    go = tmp_path / "go"
+    with TaskPool(2) as pool:
+        running = [pool.start_task(wait_for_file, go) for _ in range(2)]
+        for _ in range(6000):  # until both workers are in their task
+            if len(list(tmp_path.glob("started_*"))) == 2:
+                break
+            time.sleep(0.01)
+        # the process pool moves at most workers + 1 tasks to its call queue, after
+        # which they cannot be cancelled: the last of these six is surely queued
+        queued = [pool.start_task(square_or_fail, x) for x in range(6)]
+        pool.cancel(running + queued[-1:])
+        assert queued[-1].cancelled()
+        assert not any(f.cancelled() for f in running)
+        go.touch()
+        got = []
+        while len(got) < 2:
+            got += pool.next_done(set(running) - set(got))
+        assert [f.result().value for f in got] == ["go", "go"]
+        rest = set(queued[:-1])
+        while rest:
+            rest -= set(pool.next_done(rest))
+        assert queued[0].result().value == 0

@@ -200,3 +200,18 @@ def test_run_on_a_local_dask_cluster_matches_serial(study, tmp_path):
         assert a == b, rel  # byte-identical tables
     pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "serial/timeline/p01__s1.parquet"),
                                   pd.read_parquet(tmp_path / "dask/timeline/p01__s1.parquet"))
+
+
+def test_command_line_starts_without_the_scientific_stack():
+    # `run --workers N` starts the workers' fork server before it imports pandas, so the
+    # command line itself must import none of the heavy libraries (common practice:
+    # keep a CLI's start-up light; measured here by what is in sys.modules)
+    import subprocess
+    import sys
+
+    code = ("import sys, pipeline.cli; "
+            "print(sorted(m for m in ('pandas', 'numpy', 'scipy', 'pydantic', 'pyarrow') "
+            "if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                         text=True).stdout
+    assert out.strip() == "[]"

@@ -6,7 +6,6 @@ from pathlib import Path
 
 import typer
 
-from pipeline.agreement.summary import summary_lines
 from pipeline.cli import app, guarded
 
 #: Where the agreement tables go inside OUT.
@@ -33,6 +32,7 @@ def agree(
     study.csv (pooled).
     """
     from pipeline.agreement.tables import agreement_tables, study_agreement
+    from pipeline.agreement.summary import summary_lines
     from pipeline.config import AgreementSettings, resolve_study
     from pipeline.errors import InputError
     from pipeline.ingest import load_study

@@ -3,18 +3,21 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-import numpy as np
 import typer
 
 from pipeline.cli import app, guarded
-from pipeline.config import Config, resolve_study
 from pipeline.errors import InputError, Problem
-from pipeline.ingest import load_study, read_recording_checked
-from pipeline.types import Recording, SessionKey, Study
+
+if TYPE_CHECKING:  # imported by the functions that use them: the command line starts
+    from pipeline.config import Config  # without pandas and pydantic
+    from pipeline.types import Recording, SessionKey, Study
 
 
 def _rate(rec: Recording) -> str:
+    import numpy as np
+
     rate = rec.sampling_rate_hz
     return "rate unknown" if not np.isfinite(rate) else f"{rate:.4g} Hz"
 
@@ -22,6 +25,8 @@ def _rate(rec: Recording) -> str:
 def read_recordings(study: Study, cfg: Config) -> tuple[dict[SessionKey, Recording],
                                                         list[Problem]]:
     """Read every recording of the study; unreadable files become problems."""
+    from pipeline.ingest import read_recording_checked
+
     records: dict[SessionKey, Recording] = {}
     problems: list[Problem] = []
     for key, path in study.recordings.items():
@@ -90,6 +95,8 @@ def summary_lines(study: Study, cfg: Config, config_file: Path | None,
 
 
 def _recording_warnings(study: Study, records: dict[SessionKey, Recording]) -> list[str]:
+    import numpy as np
+
     out = []
     for key, rec in records.items():
         label = study.recordings[key].relative_to(study.root).as_posix()
@@ -115,6 +122,9 @@ def check(
 
     Exit status 0 when the study is valid, 2 when a file or setting is refused.
     """
+    from pipeline.config import resolve_study
+    from pipeline.ingest import load_study
+
     folder, cfg, config_file = resolve_study(study)
     loaded = load_study(folder, cfg)
     records, problems = read_recordings(loaded, cfg)

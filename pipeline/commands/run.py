@@ -30,10 +30,15 @@ def run(
     quiet: bool = typer.Option(False, "--quiet", "-q", help="No progress bar."),
 ) -> None:
     """Validate, process and analyse a study; write tables, charts, report and deck."""
-    from pipeline.execution import default_workers
-    from pipeline.runner import run_study
+    from pipeline.execution import default_workers, start_worker_server
 
     n = workers if workers > 0 else default_workers()
+    if n > 1 and not cluster:
+        # the workers' fork server imports the stage modules on one core while this
+        # process imports pandas and reads the study on another
+        start_worker_server()
+    from pipeline.runner import run_study
+
     result = run_study(study, out, workers=n, cluster=cluster, keep_going=keep_going,
                        fresh=fresh, quiet=quiet, report=not no_report)
     for line in result.summary:

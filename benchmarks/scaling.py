@@ -5,15 +5,18 @@ For each size a reference study is made by `screenweave synth` (4-hour sessions 
 
 * wall time and throughput (participant-hours per second) of `run --workers 1` and
   `run --workers 2` (the per-session cache is bypassed with --fresh);
-* peak memory of the whole process tree (the runner and its workers), sampled
-  with psutil: summed resident set sizes (RSS) and summed proportional set sizes
-  (PSS, which counts pages shared by forked workers once);
+* peak memory of the whole process tree (the runner, the workers' fork server and the
+  workers), sampled with psutil: summed resident set sizes (RSS) and summed
+  proportional set sizes (PSS, which counts pages shared by forked workers once);
 * the run's own stage timings (``timings_s`` of its manifest);
 * the machine's own ceiling: the speedup of 2 processes over 1 on a perfectly parallel,
   purely compute-bound task (no run can beat it);
 * the peer baseline a researcher would otherwise script: NeuroKit2's
   ``eda_process`` on the EDA channel of every recording of the study (EDA
-  processing alone, no alignment, metrics, models or report).
+  processing alone, no alignment, metrics, models or report);
+* from the three sizes, straight lines of wall time against sessions (fixed seconds
+  plus seconds per session, 1 and 2 workers) and the study size from which they give
+  2 workers a speedup of 1.7.
 
 Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
 
@@ -24,6 +27,8 @@ Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
                                       # re-measure one size on studies made before
     .venv/bin/python benchmarks/scaling.py --only small --only xlarge
                                       # memory from 12 to 240 sessions (not a target)
+    .venv/bin/python benchmarks/scaling.py --refit benchmarks/results/scaling.json
+                                      # wall-time lines of a results file, no runs
 
 Partial runs write benchmarks/results/scaling_quick.json (--quick) or
 scaling_<sizes>.json (--only; e.g. scaling_small_xlarge.json).
@@ -231,6 +236,26 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     return row
 
 
+def fit_lines(rows: list[dict], target: float = 1.7) -> dict:
+    """Least-squares lines of wall time against the number of sessions, for 1 and 2
+    workers (fixed seconds + seconds per session), and the study size from which the
+    lines give 2 workers a speedup of at least ``target`` (None when they never do).
+    Fixed costs (start-up, imports, reading the study, the models) do not shrink with
+    workers, so a small study cannot reach the speedup a large one does."""
+    import numpy as np
+
+    n = np.array([r["sessions"] for r in rows], dtype=float)
+    out: dict = {"target_speedup": target}
+    for w in (1, 2):
+        per, fixed = np.polyfit(n, [r[f"wall_s_workers{w}"] for r in rows], 1)
+        out[f"fixed_s_workers{w}"], out[f"per_session_s_workers{w}"] = fixed, per
+    # (f1 + p1 n) / (f2 + p2 n) >= target  <=>  n (p1 - target p2) >= target f2 - f1
+    gain = out["per_session_s_workers1"] - target * out["per_session_s_workers2"]
+    need = target * out["fixed_s_workers2"] - out["fixed_s_workers1"]
+    out["sessions_for_target_speedup"] = (max(0.0, need / gain) if gain > 0 else None)
+    return out
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="tiny sizes, for a smoke run")
@@ -244,7 +269,16 @@ def main() -> None:
     ap.add_argument("--only", choices=[*SIZES, *EXTRA], action="append",
                     help="measure only these sizes (repeatable; xlarge, 240 sessions, is "
                     "measured only when named)")
+    ap.add_argument("--refit", type=Path, default=None, metavar="JSON",
+                    help="measure nothing: add the wall-time lines to a results file "
+                    "written before they were computed, and print them")
     args = ap.parse_args()
+    if args.refit:
+        result = json.loads(args.refit.read_text())
+        result["wall_time_lines"] = fit_lines(result["rows"])
+        args.refit.write_text(json.dumps(result, indent=2) + "\n")
+        _print_lines(result["wall_time_lines"])
+        return
     sizes = QUICK if args.quick else SIZES | EXTRA
     hours = 0.5 if args.quick else args.hours
     work = args.keep or Path(tempfile.mkdtemp(prefix="screenweave-scaling-"))
@@ -272,6 +306,8 @@ def main() -> None:
         "pss_growth_smallest_to_largest_workers2": rows[-1]["peak_pss_mb_workers2"]
         / rows[0]["peak_pss_mb_workers2"],
     }
+    if len(rows) >= 3:
+        result["wall_time_lines"] = fit_lines(rows)
     RESULTS.mkdir(parents=True, exist_ok=True)
     if args.quick:
         target = RESULTS / "scaling_quick.json"
@@ -297,6 +333,17 @@ def main() -> None:
     print(f"RSS growth smallest -> largest (2 workers): "
           f"{result['rss_growth_smallest_to_largest_workers2']:.2f}x (PSS "
           f"{result['pss_growth_smallest_to_largest_workers2']:.2f}x); written {target}")
+    if "wall_time_lines" in result:
+        _print_lines(result["wall_time_lines"])
+
+
+def _print_lines(fit: dict) -> None:
+    n = fit["sessions_for_target_speedup"]
+    print(f"wall time = {fit['fixed_s_workers1']:.2f} s + {fit['per_session_s_workers1']:.4f} s "
+          f"per session (1 worker), {fit['fixed_s_workers2']:.2f} s + "
+          f"{fit['per_session_s_workers2']:.4f} s per session (2 workers): a speedup of "
+          f"{fit['target_speedup']} from "
+          + (f"about {n:.0f} sessions on" if n is not None else "no study size"))
 
 
 if __name__ == "__main__":

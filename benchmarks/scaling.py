@@ -16,7 +16,14 @@ For each size a reference study is made by `screenweave synth` (4-hour sessions 
   processing alone, no alignment, metrics, models or report);
 * from the three sizes, straight lines of wall time against sessions (fixed seconds
   plus seconds per session, 1 and 2 workers) and the study size from which they give
-  2 workers a speedup of 1.7.
+  2 workers a speedup of 1.7;
+* a reference for the 2-worker run: the study split into two halves by participant
+  (alternately down the roster sorted by cohort, so each half holds both cohorts and
+  half the sessions) and `run --workers 1` on both halves at once, each its own
+  process with its own start-up, reading, models and writing. What one machine gives
+  two fully independent serial runs at that moment: a 2-worker run as fast as this
+  pair loses nothing to its pool, and the speedup of 1 worker over the pair is what
+  splitting the work by hand would reach.
 
 Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
 
@@ -37,8 +44,10 @@ scaling_<sizes>.json (--only; e.g. scaling_small_xlarge.json).
 from __future__ import annotations
 
 import argparse
+import csv
 import json
 import os
+import shutil
 import statistics
 import subprocess
 import sys
@@ -122,6 +131,62 @@ def measure(cmd: list[str], env: dict | None = None) -> dict:
             "output": out[-2000:]}
 
 
+def measure_together(cmds: list[list[str]]) -> float:
+    """Start the commands at once; return the wall seconds until the last one ends."""
+    start = time.perf_counter()
+    procs = [subprocess.Popen(c, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+             for c in cmds]
+    errors = [(c, p.wait(), p.stderr.read().decode(errors="replace"))
+              for c, p in zip(cmds, procs)]
+    wall = time.perf_counter() - start
+    for cmd, code, err in errors:
+        if code != 0:
+            raise SystemExit(f"command failed ({code}): {' '.join(cmd)}\n{err[-2000:]}")
+    return wall
+
+
+def split_study(study: Path, halves: tuple[Path, Path]) -> list[int]:
+    """Write two studies of half the participants of ``study`` each: every second
+    participant down the roster sorted by cohort and ID, so that each half holds both
+    cohorts. Rows of the CSV files are kept by their ``participant_id``; recordings
+    are hard-linked (copied where links are not possible); other files are copied.
+    Handles the layout ``synth`` writes (tables at the top, recordings in signals/;
+    its truth/ folder is not an input and is left out). Returns the number of
+    sessions of each half."""
+    other = sorted(d.name for d in study.iterdir()
+                   if d.is_dir() and d.name not in ("signals", "truth"))
+    if other:
+        raise SystemExit(f"cannot split {study}: its folders {other} are not handled")
+    with open(study / "roster.csv", newline="", encoding="utf-8") as fh:
+        roster = sorted(csv.DictReader(fh), key=lambda r: (r["cohort"], r["participant_id"]))
+    ids = [r["participant_id"] for r in roster]
+    sessions = []
+    for half, keep in zip(halves, (set(ids[0::2]), set(ids[1::2]))):
+        if half.exists():
+            shutil.rmtree(half)
+        half.mkdir(parents=True)
+        for src in sorted(study.iterdir()):
+            if src.suffix == ".csv":
+                with open(src, newline="", encoding="utf-8") as fh:
+                    rows = list(csv.reader(fh))
+                col = rows[0].index("participant_id")
+                kept = [rows[0]] + [r for r in rows[1:] if r[col] in keep]
+                with open(half / src.name, "w", newline="", encoding="utf-8") as fh:
+                    csv.writer(fh, lineterminator="\n").writerows(kept)
+                if src.name == "sessions.csv":
+                    sessions.append(len(kept) - 1)
+            elif src.is_file():
+                shutil.copy2(src, half / src.name)
+        (half / "signals").mkdir()
+        for rec in sorted((study / "signals").iterdir()):
+            if rec.name.split("__", 1)[0] in keep:
+                try:
+                    os.link(rec, half / "signals" / rec.name)
+                except OSError:
+                    shutil.copy2(rec, half / "signals" / rec.name)
+    return sessions
+
+
 NK_SCRIPT = r"""
 import sys, time, warnings
 from pathlib import Path
@@ -198,14 +263,23 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     # Each measurement is repeated (--repeat, 1 and 2 workers interleaved, so that a
     # slow spell of a shared machine touches both) and the median is reported; every
     # single figure is kept in the JSON.
+    halves = (work / f"study_{name}_half_a", work / f"study_{name}_half_b")
+    row["two_halves_sessions"] = split_study(study, halves)
+
+    def run_cmd(target: Path, out: Path, workers: int) -> list[str]:
+        return [str(BIN / "screenweave"), "run", str(target), "--out", str(out),
+                "--workers", str(workers), "--fresh", "--quiet", "--no-report"]
+
     runs: dict[int, list[dict]] = {1: [], 2: []}
+    together: list[float] = []
     for _ in range(repeat):
         for workers in (1, 2):
             out = work / f"out_{name}_{workers}"
-            m = measure([str(BIN / "screenweave"), "run", str(study), "--out", str(out),
-                         "--workers", str(workers), "--fresh", "--quiet", "--no-report"])
+            m = measure(run_cmd(study, out, workers))
             m["stages"] = json.loads((out / "manifest.json").read_text()).get("timings_s", {})
             runs[workers].append(m)
+        together.append(measure_together(
+            [run_cmd(h, work / f"out_{h.name}", 1) for h in halves]))
     for workers, ms in runs.items():
         walls = [m["wall_s"] for m in ms]
         wall = statistics.median(walls)
@@ -220,6 +294,13 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     row["speedup_2_workers"] = row["wall_s_workers1"] / row["wall_s_workers2"]
     row["speedup_2_workers_each"] = [a["wall_s"] / b["wall_s"]
                                      for a, b in zip(runs[1], runs[2])]
+    # the reference: two serial runs on the halves at once (see the module docstring)
+    row["wall_s_two_halves_together"] = statistics.median(together)
+    row["wall_s_two_halves_together_each"] = together
+    row["speedup_two_halves_together"] = (row["wall_s_workers1"]
+                                          / row["wall_s_two_halves_together"])
+    row["workers2_vs_two_halves_together"] = (row["wall_s_workers2"]
+                                              / row["wall_s_two_halves_together"])
     nks = []
     for _ in range(repeat):
         nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
@@ -327,6 +408,14 @@ def main() -> None:
               f"{r['peak_rss_mb_workers2']:.0f} | {r['peak_pss_mb_workers2']:.0f} | "
               f"{r['neurokit2_eda_process_s']:.1f} | "
               f"{r['run_vs_neurokit2_time']:.3f} |")
+    print("\n| size | workers 1 (s) | two halves at once, 1 worker each (s) | speedup of the "
+          "halves | workers 2 / two halves |")
+    print("|---|---|---|---|---|")
+    for r in rows:
+        print(f"| {r['size']} | {r['wall_s_workers1']:.1f} | "
+              f"{r['wall_s_two_halves_together']:.1f} | "
+              f"{r['speedup_two_halves_together']:.2f} | "
+              f"{r['workers2_vs_two_halves_together']:.2f} |")
     print(f"\nmedians of {args.repeat} runs each; this machine's ceiling for 2 processes on a "
           f"perfectly parallel compute task: {ceiling:.2f}x (runs: "
           f"{', '.join(f'{c:.2f}' for c in ceilings)})")

@@ -133,13 +133,18 @@ def measure(cmd: list[str], env: dict | None = None) -> dict:
 
 def measure_together(cmds: list[list[str]]) -> float:
     """Start the commands at once; return the wall seconds until the last one ends."""
+    # messages go to files, not pipes: a pipe nobody reads until the end can fill up
+    # and stall the command writing to it
+    logs = [tempfile.TemporaryFile() for _ in cmds]
     start = time.perf_counter()
-    procs = [subprocess.Popen(c, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-             for c in cmds]
-    errors = [(c, p.wait(), p.stderr.read().decode(errors="replace"))
-              for c, p in zip(cmds, procs)]
+    procs = [subprocess.Popen(c, stdout=subprocess.DEVNULL, stderr=log)
+             for c, log in zip(cmds, logs)]
+    codes = [p.wait() for p in procs]
     wall = time.perf_counter() - start
-    for cmd, code, err in errors:
+    for cmd, code, log in zip(cmds, codes, logs):
+        log.seek(0)
+        err = log.read().decode(errors="replace")
+        log.close()
         if code != 0:
             raise SystemExit(f"command failed ({code}): {' '.join(cmd)}\n{err[-2000:]}")
     return wall
@@ -260,9 +265,6 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
     row = {"size": name, "sessions": n_sessions, "participant_hours": participant_hours,
            "rate_hz": rate, "study_mb": sum(p.stat().st_size for p in study.rglob("*")
                                            if p.is_file()) / 2**20}
-    # Each measurement is repeated (--repeat, 1 and 2 workers interleaved, so that a
-    # slow spell of a shared machine touches both) and the median is reported; every
-    # single figure is kept in the JSON.
     halves = (work / f"study_{name}_half_a", work / f"study_{name}_half_b")
     row["two_halves_sessions"] = split_study(study, halves)
 
@@ -270,6 +272,9 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
         return [str(BIN / "screenweave"), "run", str(target), "--out", str(out),
                 "--workers", str(workers), "--fresh", "--quiet", "--no-report"]
 
+    # Each measurement is repeated (--repeat; 1 worker, 2 workers and the two halves
+    # interleaved, so that a slow spell of a shared machine touches all three) and the
+    # median is reported; every single figure is kept in the JSON.
     runs: dict[int, list[dict]] = {1: [], 2: []}
     together: list[float] = []
     for _ in range(repeat):

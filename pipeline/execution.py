@@ -25,8 +25,8 @@ from pipeline.errors import ConfigError, ScreenweaveError
 DASK_CONNECT_TIMEOUT_S = 20
 
 #: The modules the per-session and group tasks need: the runner's task functions and
-#: the stage modules that import scipy and statsmodels (about two seconds of CPU on
-#: first import), and the statsmodels model the cohort comparison fits first. Local
+#: the stage modules that import scipy and statsmodels (about 1.2 s of one core on
+#: first import, measured 2026-12-03), and the statsmodels model the cohort comparison fits first. Local
 #: workers are forked from one process that has imported them (see
 #: :func:`start_worker_server`), so a run imports them once however many workers it
 #: has, and the runner's own process never needs them when it has workers.
@@ -145,7 +145,7 @@ def _context():
 def start_worker_server(preload: Sequence[str] = STAGE_MODULES) -> None:
     """Start the process that local workers are forked from, without waiting for it.
 
-    It imports ``preload`` once (about two seconds of one core for the stage modules)
+    It imports ``preload`` once (about 1.2 s of one core for the stage modules)
     while the caller goes on with its own imports and reads the study on the other
     core; every worker forked from it then starts with them imported, instead of each
     worker importing them anew (two workers used to spend about 3.6 s of CPU on it).
@@ -385,7 +385,7 @@ class _Handoff:
     """Hands a local pool's tasks to its worker processes from a thread of its own.
 
     Starting a worker waits until the fork server has imported the stage modules
-    (about two seconds); a task queued before that must not hold up the runner. Each
+    (1.4 to 1.6 s into a run); a task queued before that must not hold up the runner. Each
     task gets a future of its own at once; the thread submits the task to the process
     pool, and the pool's future settles it. With ``notify`` a settled future is put on
     ``finished`` (what :meth:`TaskPool.next_done` waits on).

@@ -4,10 +4,12 @@ For each size a reference study is made by `screenweave synth` (4-hour sessions 
 32 Hz, artifacts and clock drift on). Measured, each in a fresh subprocess:
 
 * wall time and throughput (participant-hours per second) of `run --workers 1` and
-  `run --workers 2` (the per-session cache is bypassed with --fresh);
+  `run --workers 2` (the per-session cache is bypassed with --fresh), with nothing
+  else running;
 * peak memory of the whole process tree (the runner, the workers' fork server and the
-  workers), sampled with psutil: summed resident set sizes (RSS) and summed
-  proportional set sizes (PSS, which counts pages shared by forked workers once);
+  workers), sampled in runs of their own (the sampling slows a run that uses both
+  cores): summed resident set sizes (RSS) and summed proportional set sizes (PSS,
+  which counts pages shared by forked workers once);
 * the run's own stage timings (``timings_s`` of its manifest);
 * the machine's own ceiling: the speedup of 2 processes over 1 on a perfectly parallel,
   purely compute-bound task (no run can beat it);
@@ -29,7 +31,7 @@ Results go to benchmarks/results/scaling.json and a Markdown table on stdout.
 
     .venv/bin/python benchmarks/scaling.py            # sizes 12, 40, 120 sessions
     .venv/bin/python benchmarks/scaling.py --quick    # 4 and 8 sessions, for a smoke run
-    .venv/bin/python benchmarks/scaling.py --repeat 5 # medians of 5 runs (default 3)
+    .venv/bin/python benchmarks/scaling.py --repeat 3 # medians of 3 runs (default 5)
     .venv/bin/python benchmarks/scaling.py --keep /tmp/w --reuse --only large
                                       # re-measure one size on studies made before
     .venv/bin/python benchmarks/scaling.py --only small --only xlarge
@@ -87,18 +89,18 @@ def _pss(pid: int) -> int:
     return 0
 
 
-def measure(cmd: list[str], env: dict | None = None) -> dict:
-    """Run a command; return wall seconds and the peak memory of its process tree.
+def peak_memory(cmd: list[str], env: dict | None = None) -> dict:
+    """Run a command; return the peak memory of its process tree (and its wall seconds,
+    which the sampling itself slows down: see :func:`wall_time`).
 
     Two memory figures: the peak of the summed resident set sizes (RSS) of the
     process and its children, sampled every 50 ms, and the peak of their summed
     proportional set sizes (PSS), sampled every 250 ms. Forked workers share the
     pages of the libraries they import before the fork; RSS counts those once per
     process, PSS splits them between the processes that share them. The sampler reads
-    /proc/PID/statm and /proc/PID/smaps_rollup, and finds the children every 250 ms,
-    so that it takes little of the CPU the run itself is measured on (reading the
-    whole smaps file every time, as psutil's memory_full_info does, cost a 2-worker
-    run up to a second on 2 cores).
+    /proc/PID/statm and /proc/PID/smaps_rollup, and finds the children every 250 ms
+    (reading the whole smaps file every time, as psutil's memory_full_info does, cost a
+    2-worker run up to a second on 2 cores).
     """
     start = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, env=env)
@@ -127,12 +129,19 @@ def measure(cmd: list[str], env: dict | None = None) -> dict:
     wall = time.perf_counter() - start
     if proc.returncode != 0:
         raise SystemExit(f"command failed ({proc.returncode}): {' '.join(cmd)}\n{out}")
-    return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "peak_pss_mb": peak_pss / 2**20,
-            "output": out[-2000:]}
+    return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "peak_pss_mb": peak_pss / 2**20}
 
 
-def measure_together(cmds: list[list[str]]) -> float:
-    """Start the commands at once; return the wall seconds until the last one ends."""
+def wall_time(cmds: list[list[str]]) -> float:
+    """Start the commands at once; return the wall seconds until the last one ends.
+
+    Nothing else runs meanwhile: the memory sampler of :func:`peak_memory` slows a run
+    that keeps both cores busy (measured at 120 sessions, 2 workers, four pairs of runs
+    one after the other: 10.3, 9.5, 9.2, 8.2 s sampled against 8.2, 8.6, 8.1, 7.6 s not;
+    the sampler used 0.7 s of CPU in each), while a 1-worker run leaves it a core of its
+    own, so timing both with it running would understate the speedup. Wall times are
+    therefore measured in runs of their own.
+    """
     # messages go to files, not pipes: a pipe nobody reads until the end can fill up
     # and stall the command writing to it
     logs = [tempfile.TemporaryFile() for _ in cmds]
@@ -247,7 +256,8 @@ NK_MAX_FILES = 40
 
 
 def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
-               work: Path, reuse: bool = False, repeat: int = 3) -> dict:
+               work: Path, reuse: bool = False, repeat: int = 5,
+               memory_repeat: int = 2) -> dict:
     study = work / f"study_{name}"
     synth = [str(BIN / "screenweave"), "synth", str(study), "--participants-per-cohort",
              str(ppc), "--sessions", str(sessions), "--hours", str(hours), "--rate-hz",
@@ -272,33 +282,38 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
         return [str(BIN / "screenweave"), "run", str(target), "--out", str(out),
                 "--workers", str(workers), "--fresh", "--quiet", "--no-report"]
 
-    # Each measurement is repeated (--repeat; 1 worker, 2 workers and the two halves
+    # Each wall time is measured `repeat` times (1 worker, 2 workers and the two halves
     # interleaved, so that a slow spell of a shared machine touches all three) and the
-    # median is reported; every single figure is kept in the JSON.
-    runs: dict[int, list[dict]] = {1: [], 2: []}
+    # median is reported; every single figure is kept in the JSON. Peak memory comes
+    # from `memory_repeat` further runs of each, sampled (see wall_time), the highest
+    # kept.
+    walls: dict[int, list[float]] = {1: [], 2: []}
+    stages: dict[int, list[dict]] = {1: [], 2: []}
     together: list[float] = []
     for _ in range(repeat):
         for workers in (1, 2):
             out = work / f"out_{name}_{workers}"
-            m = measure(run_cmd(study, out, workers))
-            m["stages"] = json.loads((out / "manifest.json").read_text()).get("timings_s", {})
-            runs[workers].append(m)
-        together.append(measure_together(
-            [run_cmd(h, work / f"out_{h.name}", 1) for h in halves]))
-    for workers, ms in runs.items():
-        walls = [m["wall_s"] for m in ms]
-        wall = statistics.median(walls)
+            walls[workers].append(wall_time([run_cmd(study, out, workers)]))
+            stages[workers].append(
+                json.loads((out / "manifest.json").read_text()).get("timings_s", {}))
+        together.append(wall_time([run_cmd(h, work / f"out_{h.name}", 1) for h in halves]))
+    for workers in (1, 2):
+        mems = [peak_memory(run_cmd(study, work / f"out_{name}_{workers}", workers))
+                for _ in range(memory_repeat)]
+        wall = statistics.median(walls[workers])
         row[f"wall_s_workers{workers}"] = wall
-        row[f"wall_s_workers{workers}_each"] = walls
-        row[f"peak_rss_mb_workers{workers}"] = max(m["peak_rss_mb"] for m in ms)
-        row[f"peak_pss_mb_workers{workers}"] = max(m["peak_pss_mb"] for m in ms)
+        row[f"wall_s_workers{workers}_each"] = walls[workers]
+        row[f"peak_rss_mb_workers{workers}"] = max(m["peak_rss_mb"] for m in mems)
+        row[f"peak_pss_mb_workers{workers}"] = max(m["peak_pss_mb"] for m in mems)
+        row[f"peak_rss_mb_workers{workers}_each"] = [m["peak_rss_mb"] for m in mems]
+        row[f"wall_s_workers{workers}_memory_runs"] = [m["wall_s"] for m in mems]
         # the stage timings of the run whose wall time is the median (or next above it)
-        middle = min(ms, key=lambda m: (m["wall_s"] < wall, abs(m["wall_s"] - wall)))
-        row[f"stage_s_workers{workers}"] = middle["stages"]
+        middle = min(range(repeat), key=lambda j: (walls[workers][j] < wall,
+                                                   abs(walls[workers][j] - wall)))
+        row[f"stage_s_workers{workers}"] = stages[workers][middle]
         row[f"participant_hours_per_s_workers{workers}"] = participant_hours / wall
     row["speedup_2_workers"] = row["wall_s_workers1"] / row["wall_s_workers2"]
-    row["speedup_2_workers_each"] = [a["wall_s"] / b["wall_s"]
-                                     for a, b in zip(runs[1], runs[2])]
+    row["speedup_2_workers_each"] = [a / b for a, b in zip(walls[1], walls[2])]
     # the reference: two serial runs on the halves at once (see the module docstring)
     row["wall_s_two_halves_together"] = statistics.median(together)
     row["wall_s_two_halves_together_each"] = together
@@ -308,9 +323,12 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
                                               / row["wall_s_two_halves_together"])
     nks = []
     for _ in range(repeat):
-        nk = measure([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
-                      str(NK_MAX_FILES)])
-        nks.append(tuple(map(float, nk["output"].strip().splitlines()[-1].split())))
+        nk = subprocess.run([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
+                             str(NK_MAX_FILES)], capture_output=True, text=True)
+        if nk.returncode != 0:
+            raise SystemExit(f"NeuroKit2 baseline failed ({nk.returncode}):\n"
+                             f"{nk.stderr[-2000:]}")
+        nks.append(tuple(map(float, nk.stdout.strip().splitlines()[-1].split())))
     nk_s = statistics.median(t for t, _, _ in nks)
     _, nk_hours, nk_files = nks[0]
     row["neurokit2_files_measured"] = int(nk_files)
@@ -350,8 +368,11 @@ def main() -> None:
     ap.add_argument("--keep", type=Path, default=None, help="work folder to keep")
     ap.add_argument("--reuse", action="store_true",
                     help="with --keep: reuse studies already made there by an earlier run")
-    ap.add_argument("--repeat", type=int, default=3,
-                    help="measure each run this many times and report the median")
+    ap.add_argument("--repeat", type=int, default=5,
+                    help="time each run this many times and report the median")
+    ap.add_argument("--memory-repeat", type=int, default=2,
+                    help="sample the peak memory of each run this many times, in runs "
+                    "of their own, and report the highest")
     ap.add_argument("--only", choices=[*SIZES, *EXTRA], action="append",
                     help="measure only these sizes (repeatable; xlarge, 240 sessions, is "
                     "measured only when named)")
@@ -376,7 +397,7 @@ def main() -> None:
         print(f"== {name}: {2 * ppc * sessions} sessions of {hours} h", flush=True)
         rows.append(bench_size(name, ppc, sessions, hours, args.rate_hz, work,
                                reuse=args.reuse and args.keep is not None,
-                               repeat=args.repeat))
+                               repeat=args.repeat, memory_repeat=args.memory_repeat))
         print(json.dumps(rows[-1], indent=1), flush=True)
     ceilings = machine_ceiling()
     ceiling = statistics.median(ceilings)
@@ -386,6 +407,7 @@ def main() -> None:
                     "two_process_ceiling_speedup": ceiling,
                     "two_process_ceiling_speedup_each": ceilings},
         "repeat": args.repeat,
+        "memory_repeat": args.memory_repeat,
         "rows": rows,
         "rss_growth_smallest_to_largest_workers2": rows[-1]["peak_rss_mb_workers2"]
         / rows[0]["peak_rss_mb_workers2"],
@@ -421,7 +443,8 @@ def main() -> None:
               f"{r['wall_s_two_halves_together']:.1f} | "
               f"{r['speedup_two_halves_together']:.2f} | "
               f"{r['workers2_vs_two_halves_together']:.2f} |")
-    print(f"\nmedians of {args.repeat} runs each; this machine's ceiling for 2 processes on a "
+    print(f"\nwall times: medians of {args.repeat} runs each; peak memory: the highest of "
+          f"{args.memory_repeat} sampled runs each; this machine's ceiling for 2 processes on a "
           f"perfectly parallel compute task: {ceiling:.2f}x (runs: "
           f"{', '.join(f'{c:.2f}' for c in ceilings)})")
     print(f"RSS growth smallest -> largest (2 workers): "

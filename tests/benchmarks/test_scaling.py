@@ -74,3 +74,19 @@ def test_fit_lines_recovers_exact_lines_and_the_size_for_the_target():
     # per-session work that 2 workers do not speed up 1.7x: no study size reaches it
     slow = [dict(r, wall_s_workers2=3 + 0.07 * r["sessions"]) for r in rows]
     assert scaling.fit_lines(slow)["sessions_for_target_speedup"] is None
+
+
+def test_peak_memory_sees_what_the_command_holds():
+    # a child that holds a 200 MB buffer for half a second, sampled every 50 ms
+    held = "b = bytearray(200 * 2**20); import time; time.sleep(0.5)"
+    mem = scaling.peak_memory([sys.executable, "-c", held])
+    assert mem["peak_rss_mb"] >= 200
+    assert mem["peak_pss_mb"] >= 150  # sampled every 250 ms: at least one sample
+    assert mem["wall_s"] >= 0.5
+
+
+def test_wall_time_reports_a_failed_command_with_its_message():
+    fails = [sys.executable, "-c", "import sys; sys.exit('no study here')"]
+    ok = [sys.executable, "-c", "pass"]
+    with pytest.raises(SystemExit, match=r"command failed \(1\).*no study here"):
+        scaling.wall_time([ok, fails])

@@ -136,11 +136,12 @@ def wall_time(cmds: list[list[str]]) -> float:
     """Start the commands at once; return the wall seconds until the last one ends.
 
     Nothing else runs meanwhile: the memory sampler of :func:`peak_memory` slows a run
-    that keeps both cores busy (measured at 120 sessions, 2 workers, four pairs of runs
-    one after the other: 10.3, 9.5, 9.2, 8.2 s sampled against 8.2, 8.6, 8.1, 7.6 s not;
-    the sampler used 0.7 s of CPU in each), while a 1-worker run leaves it a core of its
-    own, so timing both with it running would understate the speedup. Wall times are
-    therefore measured in runs of their own.
+    that keeps both cores busy (measured on 2026-12-03 at 120 sessions, 2 workers, in
+    the order sampled, plain, plain, sampled, twice: 10.4, 8.7, 8.2, 9.0 s sampled
+    against 8.8, 8.5, 7.8, 7.7 s not; the sampler itself used about 0.7 s of CPU per
+    run), while a 1-worker run leaves it a core of its own, so timing both with it
+    running would understate the speedup. Wall times are therefore measured in runs of
+    their own.
     """
     # messages go to files, not pipes: a pipe nobody reads until the end can fill up
     # and stall the command writing to it

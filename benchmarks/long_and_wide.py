@@ -16,7 +16,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from scaling import BIN, RESULTS, measure
+from scaling import BIN, RESULTS, peak_memory
 
 CASES = {
     # name: (participants per cohort, sessions, hours, rate)
@@ -40,8 +40,8 @@ def main() -> None:
 
         recs = sorted((study / "signals").glob("*.parquet"))
         samples = max(pd.read_parquet(r, columns=["time_s"]).shape[0] for r in recs)
-        m = measure([str(BIN / "screenweave"), "run", str(study), "--out", str(work / f"out_{name}"),
-                     "--workers", "1", "--fresh", "--quiet", "--no-report"])
+        m = peak_memory([str(BIN / "screenweave"), "run", str(study), "--out", str(work / f"out_{name}"),
+                         "--workers", "1", "--fresh", "--quiet", "--no-report"])
         rows.append({"case": name, "participants": 2 * ppc, "sessions": 2 * ppc * sessions,
                      "hours_per_session": hours, "rate_hz": rate, "media_log_rows": log_rows,
                      "largest_recording_samples": samples,

@@ -381,6 +381,8 @@ def main() -> None:
                     help="measure nothing: add the wall-time lines to a results file "
                     "written before they were computed, and print them")
     args = ap.parse_args()
+    if args.repeat < 1 or args.memory_repeat < 1:
+        ap.error("--repeat and --memory-repeat must be at least 1")
     if args.refit:
         result = json.loads(args.refit.read_text())
         result["wall_time_lines"] = fit_lines(result["rows"])

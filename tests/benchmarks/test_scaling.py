@@ -90,3 +90,4 @@ def test_wall_time_reports_a_failed_command_with_its_message():
     ok = [sys.executable, "-c", "pass"]
     with pytest.raises(SystemExit, match=r"command failed \(1\).*no study here"):
         scaling.wall_time([ok, fails])
+

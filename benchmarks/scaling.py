@@ -89,7 +89,16 @@ def _pss(pid: int) -> int:
     return 0
 
 
-def peak_memory(cmd: list[str], env: dict | None = None) -> dict:
+def _raise_if_failed(cmd: list[str], code: int, log) -> None:
+    """Stop the benchmark with the command's last messages when it failed (``log``: the
+    temporary file its messages went to)."""
+    if code != 0:
+        log.seek(0)
+        err = log.read().decode(errors="replace")
+        raise SystemExit(f"command failed ({code}): {' '.join(cmd)}\n{err[-2000:]}")
+
+
+def peak_memory(cmd: list[str]) -> dict:
     """Run a command; return the peak memory of its process tree (and its wall seconds,
     which the sampling itself slows down: see :func:`wall_time`).
 
@@ -102,8 +111,9 @@ def peak_memory(cmd: list[str], env: dict | None = None) -> dict:
     (reading the whole smaps file every time, as psutil's memory_full_info does, cost a
     2-worker run up to a second on 2 cores).
     """
+    log = tempfile.TemporaryFile()  # not a pipe: see wall_time
     start = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.STDOUT, env=env)
+    proc = subprocess.Popen(cmd, stdout=log, stderr=subprocess.STDOUT)
     root = psutil.Process(proc.pid)
     peak, peak_pss, tick = 0, 0, 0
     pids = [proc.pid]
@@ -125,10 +135,9 @@ def peak_memory(cmd: list[str], env: dict | None = None) -> dict:
         peak_pss = max(peak_pss, pss)
         tick += 1
         time.sleep(0.05)
-    out = proc.stdout.read().decode(errors="replace")
     wall = time.perf_counter() - start
-    if proc.returncode != 0:
-        raise SystemExit(f"command failed ({proc.returncode}): {' '.join(cmd)}\n{out}")
+    with log:
+        _raise_if_failed(cmd, proc.returncode, log)
     return {"wall_s": wall, "peak_rss_mb": peak / 2**20, "peak_pss_mb": peak_pss / 2**20}
 
 
@@ -152,11 +161,8 @@ def wall_time(cmds: list[list[str]]) -> float:
     codes = [p.wait() for p in procs]
     wall = time.perf_counter() - start
     for cmd, code, log in zip(cmds, codes, logs):
-        log.seek(0)
-        err = log.read().decode(errors="replace")
-        log.close()
-        if code != 0:
-            raise SystemExit(f"command failed ({code}): {' '.join(cmd)}\n{err[-2000:]}")
+        with log:
+            _raise_if_failed(cmd, code, log)
     return wall
 
 

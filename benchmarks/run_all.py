@@ -11,7 +11,8 @@ import sys
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-SCRIPTS = ["signals_vs_neurokit.py", "mixed_fit.py", "scaling.py", "long_and_wide.py"]
+SCRIPTS = ["signals_vs_neurokit.py", "mixed_fit.py", "scaling.py", "floor.py",
+           "long_and_wide.py"]
 
 
 def main() -> int:

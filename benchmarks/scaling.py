@@ -262,10 +262,10 @@ def machine_ceiling(repeat: int = 5) -> list[float]:
 NK_MAX_FILES = 40
 
 
-def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
-               work: Path, reuse: bool = False, repeat: int = 5,
-               memory_repeat: int = 2) -> dict:
-    study = work / f"study_{name}"
+def make_study(study: Path, ppc: int, sessions: int, hours: float, rate: float,
+               reuse: bool = False) -> Path:
+    """The benchmark's study at ``study``, made by `synth` with the script's seed (or,
+    with ``reuse``, the one an earlier run made there)."""
     synth = [str(BIN / "screenweave"), "synth", str(study), "--participants-per-cohort",
              str(ppc), "--sessions", str(sessions), "--hours", str(hours), "--rate-hz",
              str(rate), "--seed", "11", "--force"]
@@ -273,6 +273,13 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
         print(f"   reusing {study}", flush=True)
     else:
         subprocess.run(synth, check=True, stdout=subprocess.DEVNULL)
+    return study
+
+
+def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
+               work: Path, reuse: bool = False, repeat: int = 5,
+               memory_repeat: int = 2) -> dict:
+    study = make_study(work / f"study_{name}", ppc, sessions, hours, rate, reuse)
     import pandas as pd
 
     table = pd.read_csv(study / "sessions.csv")

@@ -142,8 +142,10 @@ def session_work(study: Path, sample: int) -> tuple[list[float], list[float]]:
         lines = _python(SESSION_SCRIPT, str(study), str(sample), scratch)
     each = [float(x) for x in lines[0].split()]
     files = lines[1].split()
-    reads = [float(x) for x in _python(READ_SCRIPT, str(study), files[0], *files)[0].split()[2:]]
-    return each, reads
+    # READ_SCRIPT prints its total, then each file's time; the first file is read once
+    # more at the start, to warm up, and left out
+    timed = _python(READ_SCRIPT, str(study), files[0], *files)[0].split()[2:]
+    return each, [float(x) for x in timed]
 
 
 def neurokit_per_file(study: Path) -> float:
@@ -204,7 +206,7 @@ def main() -> None:
         rests.append(statistics.median(each) - statistics.median(alone))
         nks.append(neurokit_per_file(study))
     row = {
-        "size": args.size, "sessions": n, "recordings": n,
+        "size": args.size, "sessions": n,  # synth studies: one recording per session
         "startup_s": statistics.median(starts), "startup_s_each": starts,
         "read_two_processes_s": statistics.median(reads), "read_two_processes_s_each": reads,
         "per_session_work_s": statistics.median(totals),

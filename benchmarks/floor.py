@@ -43,7 +43,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from scaling import BIN, NK_MAX_FILES, NK_SCRIPT, RESULTS, SIZES, make_study
+from scaling import BIN, NK_MAX_FILES, RESULTS, SIZES, make_study, neurokit_baseline
 
 from pipeline.execution import STAGE_MODULES
 
@@ -149,8 +149,7 @@ def session_work(study: Path, sample: int) -> tuple[list[float], list[float]]:
 
 
 def neurokit_per_file(study: Path) -> float:
-    out = _python(NK_SCRIPT, str(study / "signals"), str(NK_MAX_FILES))
-    seconds, _, files = map(float, out[-1].split())
+    seconds, _, files = neurokit_baseline(study / "signals")
     return seconds / files
 
 

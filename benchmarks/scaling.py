@@ -262,6 +262,18 @@ def machine_ceiling(repeat: int = 5) -> list[float]:
 NK_MAX_FILES = 40
 
 
+def neurokit_baseline(signals: Path) -> tuple[float, float, int]:
+    """NeuroKit2's EDA processing of at most NK_MAX_FILES recordings in ``signals``
+    (evenly spaced), in a fresh Python: (seconds, hours of recording, files)."""
+    nk = subprocess.run([str(BIN / "python"), "-c", NK_SCRIPT, str(signals),
+                         str(NK_MAX_FILES)], capture_output=True, text=True)
+    if nk.returncode != 0:
+        raise SystemExit(f"NeuroKit2 baseline failed ({nk.returncode}):\n"
+                         f"{nk.stderr[-2000:]}")
+    seconds, hours, files = map(float, nk.stdout.strip().splitlines()[-1].split())
+    return seconds, hours, int(files)
+
+
 def make_study(study: Path, ppc: int, sessions: int, hours: float, rate: float,
                reuse: bool = False) -> Path:
     """The benchmark's study at ``study``, made by `synth` with the script's seed (or,
@@ -335,14 +347,7 @@ def bench_size(name: str, ppc: int, sessions: int, hours: float, rate: float,
                                           / row["wall_s_two_halves_together"])
     row["workers2_vs_two_halves_together"] = (row["wall_s_workers2"]
                                               / row["wall_s_two_halves_together"])
-    nks = []
-    for _ in range(repeat):
-        nk = subprocess.run([str(BIN / "python"), "-c", NK_SCRIPT, str(study / "signals"),
-                             str(NK_MAX_FILES)], capture_output=True, text=True)
-        if nk.returncode != 0:
-            raise SystemExit(f"NeuroKit2 baseline failed ({nk.returncode}):\n"
-                             f"{nk.stderr[-2000:]}")
-        nks.append(tuple(map(float, nk.stdout.strip().splitlines()[-1].split())))
+    nks = [neurokit_baseline(study / "signals") for _ in range(repeat)]
     nk_s = statistics.median(t for t, _, _ in nks)
     _, nk_hours, nk_files = nks[0]
     row["neurokit2_files_measured"] = int(nk_files)

@@ -26,10 +26,11 @@ DASK_CONNECT_TIMEOUT_S = 20
 
 #: The modules the per-session and group tasks need: the runner's task functions and
 #: the stage modules that import scipy and statsmodels (about 1.2 s of one core on
-#: first import, measured 2026-12-03), and the statsmodels model the cohort comparison fits first. Local
-#: workers are forked from one process that has imported them (see
-#: :func:`start_worker_server`), so a run imports them once however many workers it
-#: has, and the runner's own process never needs them when it has workers.
+#: first import, measured 2026-12-03), and the statsmodels model the cohort
+#: comparison fits first. Local workers are forked from one process that has
+#: imported them (see :func:`start_worker_server`), so a run imports them once however
+#: many workers it has, and the runner's own process never needs them when it has
+#: workers.
 STAGE_MODULES = ("pipeline.runner", "pipeline.signals", "pipeline.metrics.session",
                  "pipeline.metrics.switch_locked", "pipeline.models",
                  "statsmodels.genmod.generalized_estimating_equations")
@@ -385,9 +386,9 @@ class _Handoff:
     """Hands a local pool's tasks to its worker processes from a thread of its own.
 
     Starting a worker waits until the fork server has imported the stage modules
-    (1.4 to 1.6 s into a run); a task queued before that must not hold up the runner. Each
-    task gets a future of its own at once; the thread submits the task to the process
-    pool, and the pool's future settles it. With ``notify`` a settled future is put on
+    (1.4 to 2.3 s into a run, as traced); a task queued before that must not hold up
+    the runner. Each task gets a future of its own at once; the thread submits the task
+    to the process pool, and the pool's future settles it. With ``notify`` a settled future is put on
     ``finished`` (what :meth:`TaskPool.next_done` waits on).
     """
 

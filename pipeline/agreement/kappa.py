@@ -107,7 +107,7 @@ def cohen_kappa(table: np.ndarray) -> float:
         raise ValueError(f"kappa needs a square table, got shape {table.shape}")
     po = observed_agreement(table)
     pe = chance_agreement(table)
-    if not np.isfinite(pe) or np.isclose(pe, 1.0):
+    if not np.isfinite(pe) or pe >= 1.0:
         return float("nan")
     return float((po - pe) / (1.0 - pe))
 

@@ -101,6 +101,24 @@ def test_kappa_of_identical_constant_codes_is_undefined():
     assert np.isnan(cohen_kappa(np.zeros((2, 2))))
 
 
+def test_kappa_stays_defined_when_one_category_is_very_rare():
+    # Two evenings of coded seconds (200,000) with a single second of "phone", coded by
+    # both coders at the same second: p_e = 1 - 1e-5, close to but not 1, so kappa is
+    # defined and is 1 (perfect agreement). Reference implementation:
+    # sklearn.metrics.cohen_kappa_score (Cohen 1960).
+    a = np.array(["tv"] * 200_000, dtype=object)
+    a[123_456] = "phone"
+    b = a.copy()
+    table, _ = contingency_table(a, b)
+    assert 1.0 - chance_agreement(table) == pytest.approx(1e-5, rel=1e-3)
+    assert cohen_kappa(table) == pytest.approx(cohen_kappa_score(a, b), abs=1e-9)
+    assert cohen_kappa(table) == pytest.approx(1.0)
+    # one disagreement more: still defined, and sklearn agrees
+    b[7] = "phone"
+    table, _ = contingency_table(a, b)
+    assert cohen_kappa(table) == pytest.approx(cohen_kappa_score(a, b), abs=1e-9)
+
+
 def test_kappa_registry_refuses_unknown_method_with_choices():
     assert kappa(np.array([[20, 5], [10, 15]]), method="cohen") == pytest.approx(0.40)
     with pytest.raises(ConfigError) as err:

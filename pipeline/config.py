@@ -312,7 +312,8 @@ class CohortSettings(StrictModel):
     )
     include: list[str] = Field(
         default_factory=list,
-        description="Cohorts compared by the models; empty means every cohort in the data.",
+        description="Cohorts compared by the models and the survey comparison; empty means "
+        "every cohort in the data.",
     )
     min_participants: int = Field(
         3,

@@ -922,7 +922,8 @@ def _survey_task(args: tuple) -> tuple[pd.DataFrame, dict]:
     table = compare_survey(survey, roster, m.fdr_q, method=m.survey_method,
                            reference=cfg.cohorts.reference, items=cfg.survey.items or None,
                            min_participants=cfg.cohorts.min_participants,
-                           fdr_method=m.fdr_method, confidence=m.confidence_level)
+                           fdr_method=m.fdr_method, confidence=m.confidence_level,
+                           include=cfg.cohorts.include or None)
     return table, survey_methods(m.survey_method, m.fdr_method)
 
 

@@ -11,7 +11,7 @@ import pytest
 from typer.testing import CliRunner
 
 sys.path.insert(0, str(Path(__file__).parent / "ingest"))
-from ingest_builders import tree_hashes, write_study  # noqa: E402
+from ingest_builders import TOML, tree_hashes, write_study  # noqa: E402
 
 from pipeline.cli import app  # noqa: E402
 from pipeline.errors import EXIT_INPUT, EXIT_PARTIAL, EXIT_STAGE  # noqa: E402
@@ -167,6 +167,17 @@ def test_parallel_run_matches_serial(study, tmp_path):
     for rel in ("metrics/sessions.csv", "metrics/states.csv", "qc/sessions.csv"):
         pd.testing.assert_frame_equal(pd.read_csv(tmp_path / "a" / rel),
                                       pd.read_csv(tmp_path / "b" / rel))
+
+
+def test_cohort_include_setting_reaches_the_survey_comparison(tmp_path):
+    # [cohorts] include = ["beta"]: the survey is compared over beta alone (so untested),
+    # not with alpha as the reference, as the models leave alpha out too.
+    study = write_study(tmp_path / "study", toml=TOML + '\n[cohorts]\ninclude = ["beta"]\n')
+    res = _run(study, tmp_path / "out")
+    assert res.exit_code == 0, res.output
+    survey = pd.read_csv(tmp_path / "out" / "models/survey.csv")
+    assert set(survey["reference"]) == {"beta"}
+    assert survey["note"].str.contains("fewer than two cohorts compared").all()
 
 
 def test_run_help():

@@ -114,7 +114,8 @@ def survey_methods(method: str = "mann_whitney", fdr_method: str = "bh") -> dict
 def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: float = 0.05,
                    *, method: str = "mann_whitney", reference: str | None = None,
                    items: list[str] | None = None, min_participants: int = 3,
-                   fdr_method: str = "bh", confidence: float = 0.95) -> pd.DataFrame:
+                   fdr_method: str = "bh", confidence: float = 0.95,
+                   include: list[str] | None = None) -> pd.DataFrame:
     """Per survey item, each cohort against the reference cohort (models/survey.csv).
 
     Parameters
@@ -123,10 +124,12 @@ def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: flo
     roster : participant_id, cohort.
     fdr_q : false discovery rate; ``p_fdr`` at or below it is a discovery.
     method : key of :data:`SURVEY_METHODS` (``[models] survey_method``).
-    reference : reference cohort (default: first in sorted order).
+    reference : reference cohort (default: first in sorted order of the compared cohorts).
     items : items analysed (``[survey] items``; default every item seen).
     min_participants : fewer responding participants in a cohort gives a not-tested row.
     fdr_method : key of :data:`pipeline.models.fdr.FDR_METHODS`, across all rows.
+    include : cohorts compared (``[cohorts] include``, as the models take it); None or
+        empty compares every cohort of the roster. The others' answers are left out.
 
     Returns
     -------
@@ -141,10 +144,13 @@ def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: flo
     s["value"] = pd.to_numeric(s["value"], errors="coerce")
     r = roster[["participant_id", "cohort"]].astype(str)
     s = s.merge(r, on="participant_id", how="inner")
-    cohorts = sorted(r["cohort"].unique())
-    if reference is not None and reference not in cohorts:
-        raise ConfigError(f"[cohorts] reference {reference!r} is not a cohort of this study",
-                          hint=f"cohorts in the roster: {', '.join(cohorts)}")
+    known = sorted(r["cohort"].unique())
+    for name in [*(include or []), *([reference] if reference is not None else [])]:
+        if name not in known:
+            raise ConfigError(f"[cohorts] names cohort {name!r}, which is not a cohort of "
+                              "this study", hint=f"cohorts in the roster: {', '.join(known)}")
+    cohorts = sorted(set(include)) if include else known
+    s = s[s["cohort"].isin(cohorts)]
     ref = reference if reference is not None else (cohorts[0] if cohorts else "")
     wanted = items if items else sorted(s["item"].unique())
     rows = []
@@ -157,9 +163,13 @@ def compare_survey(survey: pd.DataFrame | None, roster: pd.DataFrame, fdr_q: flo
         if repeated:
             notes.append(f"{repeated} participant(s) answered more than once: their mean used")
         others = [c for c in cohorts if c != ref]
+        if ref not in cohorts:
+            rows.append(_row(item, method, "", ref, per, _untested(
+                f"the reference cohort {ref} is not among [cohorts] include"), notes))
+            continue
         if not others:
             rows.append(_row(item, method, "", ref, per, _untested(
-                "fewer than two cohorts in the roster"), notes))
+                "fewer than two cohorts compared"), notes))
             continue
         for c in others:
             x = per.loc[per["cohort"] == c, "mean"].to_numpy(float)

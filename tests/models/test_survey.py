@@ -111,3 +111,27 @@ def test_unknown_survey_method_lists_choices():
     with pytest.raises(ConfigError) as err:
         compare_survey(survey, roster, 0.05, method="wilcoxon")
     assert "mann_whitney" in err.value.hint and "ordinal_logit" in err.value.hint
+
+
+def test_survey_compares_only_the_included_cohorts_like_the_models():
+    # Three cohorts; [cohorts] include = ["b", "c"] leaves cohort a's answers out, and
+    # the reference is then the first included cohort, b, as in the models' plan.
+    survey, roster = survey_tables(n=8)
+    roster = pd.concat([roster, pd.DataFrame({"participant_id": [f"q{i}" for i in range(8)],
+                                              "cohort": "c"})], ignore_index=True)
+    extra = survey[survey.participant_id.isin([f"p{i}" for i in range(8)])]
+    survey = pd.concat([survey, extra.assign(participant_id=extra.participant_id.str
+                                             .replace("p", "q"))], ignore_index=True)
+    out = compare_survey(survey, roster, 0.05, include=["c", "b"])
+    assert set(out["cohort"]) == {"c"} and set(out["reference"]) == {"b"}
+    by_hand = compare_survey(survey[~survey.participant_id.isin(roster.participant_id[
+        roster.cohort == "a"])], roster[roster.cohort != "a"], 0.05)
+    pd.testing.assert_frame_equal(out, by_hand)
+    # every cohort compared when include is empty, as the models do
+    assert set(compare_survey(survey, roster, 0.05, include=[])["cohort"]) == {"b", "c"}
+
+    with pytest.raises(ConfigError, match="'z'"):
+        compare_survey(survey, roster, 0.05, include=["b", "z"])
+    out = compare_survey(survey, roster, 0.05, include=["b", "c"], reference="a")
+    assert out.note.str.contains("reference cohort a is not among").all()
+    assert out.p_value.isna().all()
